@@ -1,0 +1,110 @@
+"""``reportgen build STUDY.yaml``: the audit-ready report (HTML, PDF/A-3b, results.json, charts).
+
+Only click is imported here; the render stack (Jinja2, matplotlib, WeasyPrint) is imported
+inside the command, so ``reportgen --help`` and ``reportgen check`` stay fast.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+from pathlib import Path
+
+import click
+
+from ..errors import ExitCode, ReportgenError
+
+
+class StrictWarnings(ReportgenError):
+    """Warnings were raised and --strict was given."""
+
+    exit_code = ExitCode.STRICT
+
+
+@click.command("build")
+@click.argument("study_file", type=click.Path(dir_okay=False, path_type=Path))
+@click.option(
+    "-o",
+    "--output",
+    "output",
+    type=click.Path(file_okay=False, path_type=Path),
+    default=Path("output"),
+    show_default=True,
+    help="Folder the report is written into, as <output>/<study-id>/rev<N>/.",
+)
+@click.option(
+    "--replace",
+    is_flag=True,
+    help="Rebuild an existing revision folder as a DRAFT (marked on every page).",
+)
+@click.option(
+    "--generated-at",
+    "generated_at",
+    metavar="ISO-TIME",
+    default=None,
+    help="Build time printed in the report and the PDF metadata (default: SOURCE_DATE_EPOCH, else now). "
+    "The same inputs and the same time give byte-identical files.",
+)
+@click.option("--strict", is_flag=True, help="Fail (exit 4) when the analysis raises any warning.")
+@click.option("--no-pdf", "no_pdf", is_flag=True, help="Write the HTML, charts and results.json only.")
+@click.option("--quiet", is_flag=True, help="Print nothing but errors.")
+def command(
+    study_file: Path,
+    output: Path,
+    replace: bool,
+    generated_at: str | None,
+    strict: bool,
+    no_pdf: bool,
+    quiet: bool,
+) -> None:
+    """Build the report of STUDY_FILE: HTML and PDF/A-3b with charts, results.json beside them."""
+    from ..ratings import load_ratings
+    from ..render.build import build_report, compute_results, resolve_generated_at, revision_dir
+    from ..study import load_study
+
+    quiet = quiet or bool(os.environ.get("CI"))
+    tty = not quiet and sys.stderr.isatty()
+    start = time.perf_counter()
+
+    def progress(msg: str) -> None:
+        if tty:
+            click.echo(f"  {msg} …", err=True)
+
+    when = resolve_generated_at(generated_at)
+    study = load_study(study_file)
+    target = revision_dir(output, study)
+    if target.exists() and not replace:
+        from ..render.build import write_folder
+
+        write_folder(target, {}, replace=False)  # raises ExistsError
+    progress("reading ratings")
+    ratings = load_ratings(study)
+    results = compute_results(study, ratings, progress=progress)
+    warnings = results.get("warnings") or []
+    if strict and warnings:
+        lines = [
+            f"{w.get('measure')}: {w.get('message')}" if isinstance(w, dict) else str(w) for w in warnings
+        ]
+        raise StrictWarnings(
+            f"{len(warnings)} warning(s) and --strict was given; nothing was written:\n  " + "\n  ".join(lines)
+        )
+    folder = build_report(
+        study,
+        output_dir=output,
+        generated_at=when,
+        replace=replace,
+        progress=progress,
+        pdf=not no_pdf,
+        ratings=ratings,
+        results=results,
+    )
+    if not quiet:
+        verdict = results.get("verdict") or {}
+        outcome = verdict.get("outcome") if isinstance(verdict, dict) else verdict
+        click.echo(f"{study.id} revision {study.revision}: {outcome or 'no verdict'}{' (DRAFT)' if replace else ''}")
+        for p in sorted(folder.iterdir()):
+            click.echo(f"  wrote {p}")
+        if warnings:
+            click.echo(f"  {len(warnings)} warning(s): see the data integrity section", err=True)
+        click.echo(f"  took {time.perf_counter() - start:.1f} s", err=True)

@@ -1,0 +1,171 @@
+"""``reportgen init DIR``: write a commented study definition and empty ratings templates.
+
+Existing files are never overwritten (exit 5).  Once the blanks are filled in, the folder
+passes ``reportgen check DIR/study.yaml``.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import click
+
+SCALES = ("binary", "nominal", "ordinal")
+DEFAULT_CATEGORIES = {
+    "binary": "OK=Conforming,NC=Nonconforming",
+    "nominal": "T1=Type 1,T2=Type 2,T3=Type 3",
+    "ordinal": "G1=Grade 1 (best),G2=Grade 2,G3=Grade 3",
+}
+FILES = ("study.yaml", "ratings.csv", "reference.csv")
+
+
+def _split_list(value: str, what: str) -> list[str]:
+    parts = [p.strip() for p in value.split(",")]
+    if not value.strip() or any(not p for p in parts):
+        raise click.BadParameter(f"give a comma-separated list of {what}, without empty entries")
+    return parts
+
+
+def _categories(value: str, scale: str) -> list[tuple[str, str]]:
+    out: list[tuple[str, str]] = []
+    for part in _split_list(value, "category codes"):
+        code, _, label = part.partition("=")
+        code, label = code.strip(), label.strip() or code.strip()
+        if not code:
+            raise click.BadParameter(f"{part!r} has no code before '='")
+        out.append((code, label))
+    codes = [c for c, _ in out]
+    if len(set(codes)) != len(codes):
+        raise click.BadParameter("category codes must differ")
+    if len(out) < 2:
+        raise click.BadParameter("at least 2 categories are needed")
+    if scale == "binary" and len(out) != 2:
+        raise click.BadParameter("a binary study has exactly 2 categories (conforming first, nonconforming second)")
+    return out
+
+
+def _q(text: str) -> str:
+    """A YAML double-quoted string."""
+    return '"' + text.replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
+def study_yaml(*, study_id: str, scale: str, categories: list[tuple[str, str]], raters: list[str], trials: int) -> str:
+    """The commented study definition written by ``init``."""
+    cats = "\n".join(f"  - {{code: {_q(c)}, label: {_q(label)}}}" for c, label in categories)
+    rater_lines = "\n".join(f"  - {{id: {_q(r)}, name: {_q('Name of ' + r)}}}" for r in raters)
+    if scale == "binary":
+        defect = f"defect_category: {_q(categories[-1][0])}   # the nonconforming category (required for binary)"
+    else:
+        defect = f"# defect_category: {_q(categories[-1][0])}   # optional: the nonconforming category"
+    order = "order matters: first = best" if scale == "ordinal" else "order is only the display order"
+    return f"""\
+# Study definition written by `reportgen init`.  Fill in ratings.csv and reference.csv, then run
+#   reportgen check study.yaml
+# Every key is described in the README ("Study definition reference").
+
+study:
+  id: {_q(study_id)}            # letters, digits, - _ . (used in folder names)
+  title: "Title of the study"   # shown at the top of the report
+  purpose: "Why the study is run"   # optional
+  characteristic: "What is judged"  # optional, e.g. surface finish
+  station: "Where it is judged"     # optional, e.g. final inspection, line 3
+  revision: 1                   # whole number from 1; raise it when the study is repeated
+  # date: 2026-01-31            # optional: date of the study (YYYY-MM-DD)
+  safety_related: false         # true: the report carries the safety caution prominently
+
+scale: {scale}                  # binary | nominal | ordinal
+categories:                     # {order}
+{cats}
+{defect}
+
+raters:                         # one entry per person; ids as used in the ratings file
+{rater_lines}
+trials: {trials}                      # blind passes of each rater over all items
+
+ratings: ratings.csv            # long layout item,rater,trial,rating (paths relative to this file)
+reference: reference.csv        # item,reference: the agreed correct category of each item
+# key: plan/key.csv             # optional: ratings carry coded labels, decoded with this key
+missing: refuse                 # refuse | allow: what to do with absent ratings
+
+confidence: 0.95                # interval level, between 0.5 and 1
+interval: clopper-pearson       # proportion interval: clopper-pearson | wilson
+bootstrap: {{resamples: 2000, seed: 1}}   # resamples 0 = analytic intervals only
+weights: linear                 # ordinal weighted measures: linear | quadratic | k x k matrix
+target_half_width: 0.10         # planning figure: wanted half-width of the agreement interval
+
+# Acceptance criteria (see the README, "Acceptance criteria and certification"):
+# criteria:
+#   source: "Company procedure, revision"
+#   rules:
+#     - {{measure: reproducibility.fleiss_kappa, pass: 0.75, marginal: 0.40, judge: lower_bound}}
+
+# signoff: {{prepared_by: "", reviewed_by: "", approved_by: ""}}
+# report: {{paper: A4}}          # A4 | letter
+# plan: {{seed: 7}}              # used by `reportgen plan`
+"""
+
+
+def ratings_template(*, items: list[str], raters: list[str], trials: int) -> str:
+    """Long-layout ratings CSV with every item, rater and trial, and blank ratings."""
+    rows = ["item,rater,trial,rating"]
+    rows += [f"{i},{r},{t},"
+             for r in raters
+             for t in range(1, trials + 1)
+             for i in items]
+    return "\n".join(rows) + "\n"
+
+
+def reference_template(*, items: list[str]) -> str:
+    return "\n".join(["item,reference", *(f"{i}," for i in items)]) + "\n"
+
+
+@click.command("init")
+@click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
+@click.option("--scale", type=click.Choice(SCALES), default="ordinal", show_default=True, help="Kind of categories.")
+@click.option("--categories", help="Comma-separated codes, each optionally CODE=Label (default depends on --scale).")
+@click.option("--raters", default="R1,R2,R3", show_default=True, help="Comma-separated rater ids.")
+@click.option("--trials", type=click.IntRange(1, 20), default=3, show_default=True, help="Blind passes per rater.")
+@click.option("--items", "n_items", type=click.IntRange(1, 100_000), default=30, show_default=True, help="Number of items.")
+@click.option("--id", "study_id", help="Study id (default: from the folder name).")
+def command(folder: Path, scale: str, categories: str | None, raters: str, trials: int, n_items: int, study_id: str | None) -> None:
+    """Start a new study in FOLDER: a commented study.yaml and blank ratings and reference CSVs.
+
+    Refuses to overwrite existing files (exit 5).
+    """
+    from ..errors import ExistsError
+
+    cats = _categories(categories or DEFAULT_CATEGORIES[scale], scale)
+    rater_ids = _split_list(raters, "rater ids")
+    if len(set(rater_ids)) != len(rater_ids):
+        raise click.BadParameter("rater ids must differ", param_hint="--raters")
+    if any("/" in r or "," in r for r in rater_ids):
+        raise click.BadParameter("rater ids must not contain '/'", param_hint="--raters")
+    if study_id is None:
+        study_id = re.sub(r"[^A-Za-z0-9._-]+", "-", folder.resolve().name).strip("-.") or "study"
+    elif not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", study_id):
+        raise click.BadParameter("letters, digits, '-', '_' and '.' only", param_hint="--id")
+    width = max(3, len(str(n_items)))
+    items = [f"{i:0{width}d}" for i in range(1, n_items + 1)]
+    contents = {
+        "study.yaml": study_yaml(study_id=study_id, scale=scale, categories=cats, raters=rater_ids, trials=trials),
+        "ratings.csv": ratings_template(items=items, raters=rater_ids, trials=trials),
+        "reference.csv": reference_template(items=items),
+    }
+    existing = [folder / name for name in FILES if (folder / name).exists()]
+    if existing:
+        raise ExistsError(f"{', '.join(str(p) for p in existing)} already exist(s); init never overwrites files")
+    folder.mkdir(parents=True, exist_ok=True)
+    written: list[Path] = []
+    try:
+        for name, text in contents.items():
+            target = folder / name
+            with open(target, "x", encoding="utf-8", newline="\n") as fh:
+                fh.write(text)
+            written.append(target)
+    except FileExistsError as exc:
+        for p in written:
+            p.unlink()
+        raise ExistsError(f"{exc.filename} already exists; init never overwrites files") from None
+    click.echo(f"wrote {folder / 'study.yaml'}, {folder / 'ratings.csv'} ({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}")
+    click.echo(f"next: fill in the blanks, then run: reportgen check {folder / 'study.yaml'}")

@@ -1,0 +1,290 @@
+"""``reportgen stats STUDY.yaml``: compute every figure of a study and print it.
+
+Prints a readable summary on the terminal, or the full results as JSON with ``--json``
+(schema ``reportgen-results/1``, documented in the README).  Only click is imported at module
+level; the loaders and the statistics are imported inside the command.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from typing import Any
+
+import click
+
+_NAMES = {
+    "agreement": "Agreement rate",
+    "effectiveness": "Effectiveness",
+    "fleiss_kappa": "Fleiss' kappa",
+    "krippendorff_alpha": "Krippendorff's alpha",
+    "krippendorff_alpha_interval": "Krippendorff's alpha (interval)",
+    "gwet_ac1": "Gwet's AC1",
+    "gwet_ac2": "Gwet's AC2",
+    "conger_kappa": "Conger's kappa",
+    "light_kappa": "Light's kappa",
+    "brennan_prediger": "Brennan-Prediger",
+    "kendall_w": "Kendall's W",
+    "cohen_kappa": "Cohen's kappa",
+    "weighted_kappa": "Weighted kappa",
+    "miss_rate": "Miss rate",
+    "false_alarm_rate": "False alarm rate",
+    "kendall_tau_b": "Kendall's tau-b",
+}
+
+
+def _num(x: Any, digits: int = 3) -> str:
+    if x is None:
+        return "–"
+    if isinstance(x, bool):
+        return "yes" if x else "no"
+    if isinstance(x, int):
+        return str(x)
+    return f"{x:.{digits}f}"
+
+
+def _interval(m: dict[str, Any] | None) -> str:
+    if not m or m.get("ci_low") is None or m.get("ci_high") is None:
+        return "–"
+    return f"{_num(m['ci_low'])} to {_num(m['ci_high'])}"
+
+
+def _p(m: dict[str, Any] | None) -> str:
+    if not m or m.get("p_value") is None:
+        return "–"
+    p = m["p_value"]
+    return "< 0.001" if p < 0.001 else f"{p:.3f}"
+
+
+def _counted(m: dict[str, Any] | None) -> str:
+    if not m or m.get("items") is None:
+        return "–"
+    return f"{m.get('agreeing')}/{m.get('items')}"
+
+
+def _table(rows: list[list[str]]) -> list[str]:
+    widths = [max(len(r[c]) for r in rows) for c in range(len(rows[0]))]
+    out = []
+    for r in rows:
+        cells = [r[0].ljust(widths[0])] + [
+            v.rjust(w) for v, w in zip(r[1:], widths[1:], strict=True)
+        ]
+        out.append("  " + "  ".join(cells).rstrip())
+    return out
+
+
+def format_summary(results: dict[str, Any]) -> str:
+    """The terminal summary of a results dict (numbers rounded here, for reading only)."""
+    lines: list[str] = []
+    st, de = results["study"], results["design"]
+    level = de.get("confidence_level", 0.95)
+    pct = f"{level * 100:g} % interval"
+    lines.append(
+        f"Study {st['id']} (revision {st['revision']}): {st.get('title') or ''}".rstrip(": ")
+    )
+    cats = ", ".join(c["code"] for c in de["categories"])
+    lines.append(
+        f"Design: {de['items']} items, {de['raters']} raters, {de['trials']} trial(s); "
+        f"{de['scale']} scale with {len(de['categories'])} categories ({cats}); "
+        f"{de['ratings']} ratings, {de['missing']} missing"
+    )
+    boot = results.get("bootstrap") or {}
+    if boot.get("measures"):
+        how = (
+            f"{boot.get('ci_method')} ({boot['resamples']} resamples of items, seed {boot['seed']})"
+        )
+    else:
+        how = "analytic"
+    lines.append(
+        f"Intervals: {pct}; proportions {de.get('proportion_interval')}; coefficients {how}"
+    )
+
+    rep = results.get("repeatability")
+    if rep:
+        lines += ["", "Rater repeatability (each rater against their own other trials)"]
+        rows = [
+            ["rater", "Agreeing/Items", "Agreement rate", pct, "Mixed calls", "Fleiss' kappa", pct]
+        ]
+        for rid, e in rep.items():
+            rows.append(
+                [
+                    rid,
+                    _counted(e["agreement"]),
+                    _num(e["agreement"]["estimate"]),
+                    _interval(e["agreement"]),
+                    str(e.get("mixed_calls", "–")),
+                    _num(e["fleiss_kappa"]["estimate"]),
+                    _interval(e["fleiss_kappa"]),
+                ]
+            )
+        lines += _table(rows)
+
+    acc = results.get("accuracy")
+    if acc:
+        lines += ["", "Rater accuracy (each rater against the reference)"]
+        keys = [
+            k
+            for k in (
+                "agreement",
+                "effectiveness",
+                "cohen_kappa",
+                "weighted_kappa",
+                "miss_rate",
+                "false_alarm_rate",
+                "kendall_tau_b",
+            )
+            if any(k in e for e in acc.values())
+        ]
+        rows = [["rater"] + [_NAMES[k] for k in keys]]
+        for rid, e in acc.items():
+            rows.append([rid] + [_num(e[k]["estimate"]) if k in e else "–" for k in keys])
+        lines += _table(rows)
+        rows = [["rater"] + [f"{_NAMES[k]}, {pct}" for k in keys]]
+        for rid, e in acc.items():
+            rows.append([rid] + [_interval(e.get(k)) for k in keys])
+        lines += _table(rows)
+        if any("misses" in e.get("counts", {}) for e in acc.values()):
+            rows = [
+                ["rater", "Misses", "of defect ratings", "False alarms", "of conforming ratings"]
+            ]
+            for rid, e in acc.items():
+                c = e["counts"]
+                rows.append(
+                    [
+                        rid,
+                        str(c["misses"]),
+                        str(c["defect_reference_ratings"]),
+                        str(c["false_alarms"]),
+                        str(c["conforming_reference_ratings"]),
+                    ]
+                )
+            lines += _table(rows)
+
+    rp = results.get("reproducibility")
+    if rp:
+        lines += ["", "Rater-to-rater reproducibility (agreement among the raters)"]
+        rows = [["measure", "Estimate", pct, "p", "Agreeing/Items"]]
+        for key, m in rp.items():
+            if key in _NAMES and isinstance(m, dict):
+                rows.append(
+                    [
+                        _NAMES[key],
+                        _num(m["estimate"]),
+                        _interval(m),
+                        _p(m),
+                        _counted(m) if key == "agreement" else "–",
+                    ]
+                )
+        lines += _table(rows)
+        by_cat = rp.get("fleiss_kappa_by_category")
+        if by_cat:
+            lines.append(
+                "  Fleiss' kappa by category: "
+                + ", ".join(f"{c} {_num(m['estimate'])}" for c, m in by_cat.items())
+            )
+        if rp.get("by_trial"):
+            parts = [
+                f"trial {t}: {_num(e['fleiss_kappa']['estimate'])}"
+                for t, e in rp["by_trial"].items()
+            ]
+            lines.append("  Fleiss' kappa by trial: " + ", ".join(parts))
+
+    pa = results.get("panel_accuracy")
+    if pa:
+        lines += ["", "Panel accuracy (every rating of an item matches its reference)"]
+        rows = [["measure", "Estimate", pct, "Agreeing/Items"]]
+        for key in ("agreement", "effectiveness", "miss_rate", "false_alarm_rate"):
+            if key in pa:
+                rows.append(
+                    [_NAMES[key], _num(pa[key]["estimate"]), _interval(pa[key]), _counted(pa[key])]
+                )
+        lines += _table(rows)
+
+    od = results.get("ordinal")
+    if od and od.get("accuracy"):
+        lines += ["", "Ordered-scale agreement (positive offset: stricter than the reference)"]
+        rows = [["rater", "Exact", "Within one step", "Mean offset", pct]]
+        for rid, e in od["accuracy"].items():
+            rows.append(
+                [
+                    rid,
+                    _num(e["exact"]["estimate"]),
+                    _num(e["within_one_step"]["estimate"]),
+                    _num(e["mean_offset"]["estimate"]),
+                    _interval(e["mean_offset"]),
+                ]
+            )
+        lines += _table(rows)
+    if od and od.get("reproducibility"):
+        steps = od["reproducibility"]["steps_apart"]
+        lines.append(
+            "  Steps apart (pairs of ratings of the same item): "
+            + ", ".join(f"{s}: {n}" for s, n in steps.items())
+        )
+
+    if results.get("hard_items"):
+        lines += [
+            "",
+            "Hard items (least agreement first): " + ", ".join(results["hard_items"][:10]),
+        ]
+
+    cv = results.get("caveats") or {}
+    lines += ["", "Reading the coefficients"]
+    if "reproducibility" in cv:
+        lines.append(
+            f"  Observed agreement {_num(cv['reproducibility'].get('observed_agreement'))}, "
+            f"chance agreement {_num(cv['reproducibility'].get('chance_agreement'))}"
+        )
+    prec = cv.get("precision")
+    if prec:
+        hw = prec.get("half_width")
+        need = prec.get("items_needed")
+        lines.append(
+            f"  {prec['measure']}: half-width {_num(hw)} from {prec['items']} items; "
+            f"about {need if need is not None else '–'} items for ±{_num(prec['target_half_width'], 2)} (approximation)"
+        )
+    miss = cv.get("missing")
+    if miss:
+        lines.append(f"  Missing ratings: {miss['missing']} of {miss['expected_ratings']}")
+
+    warnings = results.get("warnings") or []
+    if warnings:
+        lines += ["", f"Warnings ({len(warnings)})"]
+        lines += [f"  {w['measure']}: {w['message']}" for w in warnings]
+    return "\n".join(lines)
+
+
+def _show_progress(quiet: bool) -> bool:
+    return not quiet and not os.environ.get("CI") and sys.stderr.isatty()
+
+
+@click.command("stats")
+@click.argument("study_path", metavar="STUDY.yaml", type=click.Path(dir_okay=False))
+@click.option(
+    "--json",
+    "as_json",
+    is_flag=True,
+    help="Print the full results as JSON (schema reportgen-results/1).",
+)
+@click.option("--quiet", "-q", is_flag=True, help="No progress messages.")
+def command(study_path: str, as_json: bool, quiet: bool) -> None:
+    """Compute every agreement figure of a study and print a summary (or the JSON results)."""
+    import json
+
+    from ..analysis import analyse
+    from ..ratings import load_ratings
+    from ..study import load_study
+
+    progress = None
+    if _show_progress(quiet):
+
+        def progress(msg: str) -> None:
+            click.echo(f"… {msg}", err=True)
+
+    study = load_study(study_path)
+    ratings = load_ratings(study)
+    results = analyse(study, ratings, progress=progress)
+    if as_json:
+        click.echo(json.dumps(results, indent=2, allow_nan=False))
+    else:
+        click.echo(format_summary(results))

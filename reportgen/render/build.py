@@ -1,0 +1,251 @@
+"""``build_report``: study → results → charts → HTML → PDF → one revision folder, whole or not at all.
+
+Everything is computed in memory first.  The folder ``<output>/<study-id>/rev<N>/`` is then
+written as a hidden temporary sibling, each file fsynced, and renamed into place in one step.
+An existing revision folder is never overwritten unless ``replace=True``, which builds a draft
+(DRAFT on every page) and swaps it in.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as dt
+import json
+import os
+import shutil
+import tempfile
+import time
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ..errors import ExistsError, RenderError
+from ..model import Ratings, Study
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class RenderedReport:
+    """A report rendered in memory, not yet written."""
+
+    study_id: str
+    revision: int
+    html: bytes
+    pdf: bytes | None
+    results_json: bytes
+    charts: dict[str, bytes]  # file name -> SVG bytes
+    results: dict[str, Any]
+    templates: tuple[str, ...]
+    timings: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def stem(self) -> str:
+        return f"{self.study_id}-rev{self.revision}"
+
+    def files(self) -> dict[str, bytes]:
+        out = {f"{self.stem}.html": self.html, "results.json": self.results_json}
+        if self.pdf is not None:
+            out[f"{self.stem}.pdf"] = self.pdf
+        out.update(self.charts)
+        return out
+
+
+def resolve_generated_at(value: dt.datetime | str | None) -> dt.datetime:
+    """The build time: the given value, else ``SOURCE_DATE_EPOCH``, else now; UTC, whole seconds."""
+    if isinstance(value, str):
+        text = value.strip().replace("Z", "+00:00")
+        try:
+            value = dt.datetime.fromisoformat(text)
+        except ValueError:
+            raise RenderError(f"--generated-at: not an ISO 8601 time: {value!r} (e.g. 2026-11-20T09:00:00Z)") from None
+    if value is None:
+        epoch = os.environ.get("SOURCE_DATE_EPOCH")
+        if epoch and epoch.strip().isdigit():
+            value = dt.datetime.fromtimestamp(int(epoch), tz=dt.UTC)
+        else:
+            value = dt.datetime.now(tz=dt.UTC)
+    if value.tzinfo is None:
+        value = value.replace(tzinfo=dt.UTC)
+    return value.astimezone(dt.UTC).replace(microsecond=0)
+
+
+def results_bytes(results: Mapping[str, Any]) -> bytes:
+    return (json.dumps(results, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode("utf-8")
+
+
+def compute_results(study: Study, ratings: Ratings, *, progress: Progress | None = None) -> dict[str, Any]:
+    """analyse + judge (when the verdict module is installed)."""
+    from ..analysis import analyse
+
+    results = analyse(study, ratings, progress=progress)
+    try:
+        from ..verdict import judge
+    except ImportError:  # pragma: no cover - the verdict module ships with reportgen
+        return results
+    results = dict(results)
+    results.update(judge(study, results))
+    return results
+
+
+def _attachments(study: Study, ratings: Ratings | None, results_json: bytes) -> list[Any]:
+    from .pdf import PdfAttachment
+
+    atts = []
+    seen: set[str] = set()
+
+    def add(name: str, data: bytes, desc: str, rel: str) -> None:
+        base, n = name, 2
+        while name in seen:
+            stem, dot, ext = base.rpartition(".")
+            name = f"{stem}-{n}.{ext}" if dot else f"{base}-{n}"
+            n += 1
+        seen.add(name)
+        atts.append(PdfAttachment(name, data, desc, rel))
+
+    add(study.path.name, study.path.read_bytes(), "Study definition", "Source")
+    for s in ratings.sources if ratings else ():
+        if s.role in ("ratings", "reference"):
+            add(s.path.name, s.path.read_bytes(), f"{s.role.capitalize()} file as read (SHA-256 {s.sha256})", "Data")
+    add("results.json", results_json, "Every figure of the report (schema reportgen-results/1)", "Supplement")
+    return atts
+
+
+def render_report(
+    study: Study,
+    ratings: Ratings | None,
+    results: Mapping[str, Any],
+    *,
+    generated_at: dt.datetime,
+    draft: bool = False,
+    pdf: bool = True,
+    progress: Progress | None = None,
+) -> RenderedReport:
+    """Render charts, HTML and PDF in memory from already computed (and judged) results."""
+    from .charts import report_charts
+    from .context import build_context, verdict_view, rater_dicts
+    from .html import render_html
+
+    say = progress or (lambda _m: None)
+    timings: dict[str, float] = {}
+    t0 = time.perf_counter()
+    say("charts")
+    charts = report_charts(study, ratings, dict(results), verdict_view(results, rater_dicts(study)))
+    timings["charts"] = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    ctx = build_context(study, ratings, results, generated_at=generated_at, draft=draft, charts=charts)
+    say("HTML")
+    rendered = render_html(ctx, override_dir=study.templates_path)
+    timings["html"] = time.perf_counter() - t0
+    rjson = results_bytes(results)
+    pdf_bytes = None
+    if pdf:
+        from .pdf import render_pdf
+
+        say("PDF")
+        t0 = time.perf_counter()
+        pdf_bytes = render_pdf(rendered.html, generated_at=generated_at, attachments=_attachments(study, ratings, rjson))
+        timings["pdf"] = time.perf_counter() - t0
+    return RenderedReport(
+        study_id=study.id,
+        revision=study.revision,
+        html=rendered.html.encode("utf-8"),
+        pdf=pdf_bytes,
+        results_json=rjson,
+        charts={c.filename: c.svg for c in charts.values()},
+        results=dict(results),
+        templates=rendered.templates,
+        timings=timings,
+    )
+
+
+def revision_dir(output_dir: Path, study: Study) -> Path:
+    return Path(output_dir) / study.id / f"rev{study.revision}"
+
+
+def write_folder(target: Path, files: Mapping[str, bytes], *, replace: bool = False) -> Path:
+    """Write ``files`` into ``target`` atomically: a temporary sibling, then one rename."""
+    parent = target.parent
+    parent.mkdir(parents=True, exist_ok=True)
+    if target.exists() and not replace:
+        raise ExistsError(
+            f"{target} already exists: a built revision is never overwritten; "
+            "raise study.revision in the study definition, or pass --replace for a draft"
+        )
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".part", dir=parent))
+    try:
+        for name, data in sorted(files.items()):
+            path = tmp / name
+            with open(path, "xb") as fh:
+                fh.write(data)
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.chmod(path, 0o444)
+        os.chmod(tmp, 0o755)
+        _fsync_dir(tmp)
+        if target.exists():  # replace=True: swap the old folder out, then delete it
+            old = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".old", dir=parent))
+            os.rmdir(old)
+            os.rename(target, old)
+            os.rename(tmp, target)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            try:
+                os.rename(tmp, target)
+            except OSError:
+                if target.exists():  # another build won the race
+                    raise ExistsError(
+                        f"{target} already exists: raise study.revision, or pass --replace for a draft"
+                    ) from None
+                raise
+        _fsync_dir(parent)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return target
+
+
+def _fsync_dir(path: Path) -> None:
+    with contextlib.suppress(OSError):
+        fd = os.open(path, os.O_RDONLY | os.O_DIRECTORY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+def build_report(
+    study: Study,
+    *,
+    output_dir: Path,
+    generated_at: dt.datetime | str | None = None,
+    replace: bool = False,
+    progress: Progress | None = None,
+    pdf: bool = True,
+    ratings: Ratings | None = None,
+    results: Mapping[str, Any] | None = None,
+) -> Path:
+    """Build the report of ``study`` into ``output_dir/<id>/rev<N>/``; return that folder.
+
+    ``ratings`` and ``results`` may be passed when already computed (they are otherwise
+    loaded and computed here).  Raises ExistsError before any work when the revision exists
+    and ``replace`` is false.
+    """
+    from ..ratings import load_ratings
+
+    target = revision_dir(Path(output_dir), study)
+    if target.exists() and not replace:
+        write_folder(target, {}, replace=False)  # raises ExistsError with the message
+    when = resolve_generated_at(generated_at)
+    say = progress or (lambda _m: None)
+    if ratings is None:
+        say("reading ratings")
+        ratings = load_ratings(study)
+    if results is None:
+        results = compute_results(study, ratings, progress=progress)
+    rendered = render_report(
+        study, ratings, results, generated_at=when, draft=replace, pdf=pdf, progress=progress
+    )
+    say("writing")
+    return write_folder(target, rendered.files(), replace=replace)

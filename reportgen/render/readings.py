@@ -1,0 +1,121 @@
+"""One-line plain-words readings of a figure, shown beside every number in the report.
+
+Each reading takes a results record ``M`` (estimate, interval, counts) and says what it means
+for someone who is not a statistician.  The words for chance-corrected coefficients are our
+own plain bands (not a published scale): they describe, the criteria decide.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from .filters import _value, fmt_int, fmt_num, fmt_pct
+
+
+def _interval(m: Mapping[str, Any], *, pct: bool) -> str:
+    lo, hi = _value(m, "ci_low"), _value(m, "ci_high")
+    if lo is None or hi is None:
+        return ""
+    f = fmt_pct if pct else (lambda v: fmt_num(v, 2))
+    return f"; the data are consistent with anything from {f(lo)} to {f(hi)}"
+
+
+def _undefined(m: Any) -> str | None:
+    if not isinstance(m, Mapping):
+        return "not computed for this study"
+    if _value(m) is None:
+        return "undefined for these data (see the warnings)"
+    return None
+
+
+def read_proportion(m: Any, what: str = "items agree") -> str:
+    """"41 of 50 items agree (82 %); the data are consistent with anything from … to …"."""
+    u = _undefined(m)
+    if u:
+        return u
+    n, a = m.get("items"), m.get("agreeing")
+    count = f"{fmt_int(a)} of {fmt_int(n)} {what}" if n is not None and a is not None else what
+    return f"{count} ({fmt_pct(m)}){_interval(m, pct=True)}"
+
+
+def chance_band(v: float) -> str:
+    if v < 0:
+        return "less agreement than chance alone would give"
+    if v < 0.2:
+        return "hardly more agreement than chance"
+    if v < 0.4:
+        return "weak agreement beyond chance"
+    if v < 0.6:
+        return "moderate agreement beyond chance"
+    if v < 0.8:
+        return "good agreement beyond chance"
+    if v < 1.0:
+        return "very good agreement beyond chance"
+    return "perfect agreement"
+
+
+def read_coefficient(m: Any) -> str:
+    """Reading of a chance-corrected coefficient (kappa, alpha, AC1 …)."""
+    u = _undefined(m)
+    if u:
+        return u
+    return chance_band(float(_value(m) or 0.0)) + _interval(m, pct=False)
+
+
+def read_rate(m: Any, kind: str = "miss") -> str:
+    """Reading of a miss rate or false alarm rate (lower is better)."""
+    u = _undefined(m)
+    if u:
+        return u
+    hi = _value(m, "ci_high")
+    what = {
+        "miss": "of the ratings of defect items called them conforming",
+        "false_alarm": "of the ratings of conforming items called them defect",
+    }.get(kind, "of the ratings")
+    text = f"{fmt_pct(m)} {what}"
+    if hi is not None:
+        text += f"; the true rate may be as high as {fmt_pct(hi)}"
+    return text
+
+
+def read_effectiveness(m: Any) -> str:
+    u = _undefined(m)
+    if u:
+        return u
+    return f"{fmt_pct(m)} of the ratings match the reference{_interval(m, pct=True)}"
+
+
+def read_rank(m: Any) -> str:
+    """Reading of Kendall's W or tau-b: agreement on the order of items."""
+    u = _undefined(m)
+    if u:
+        return u
+    v = float(_value(m) or 0.0)
+    word = "strong" if v >= 0.7 else "moderate" if v >= 0.4 else "weak" if v >= 0.1 else "little or no"
+    return f"{word} agreement on the order of the items{_interval(m, pct=False)}"
+
+
+def read_measure(m: Any, key: str) -> str:
+    """Dispatch on the measure key (last part of its results path)."""
+    if key in ("agreement",):
+        return read_proportion(m)
+    if key == "effectiveness":
+        return read_effectiveness(m)
+    if key == "miss_rate":
+        return read_rate(m, "miss")
+    if key == "false_alarm_rate":
+        return read_rate(m, "false_alarm")
+    if key in ("kendall_w", "kendall_tau_b"):
+        return read_rank(m)
+    return read_coefficient(m)
+
+
+READINGS = {
+    "read_proportion": read_proportion,
+    "read_coefficient": read_coefficient,
+    "read_rate": read_rate,
+    "read_effectiveness": read_effectiveness,
+    "read_rank": read_rank,
+    "read_measure": read_measure,
+}

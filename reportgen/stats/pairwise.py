@@ -1,0 +1,396 @@
+"""Multi-rater kappas built from rater pairs: pairwise Cohen, Light's kappa, Conger's kappa.
+
+Input: ``codes`` of shape (n_items, n_raters), integer category indices 0..k-1, ``-1`` missing;
+``k`` is the number of DECLARED categories.
+
+- :func:`pairwise_cohen` — Cohen's kappa for every pair of raters, each over the items both
+  rated (Cohen 1960; FCE 1969 intervals, see :mod:`reportgen.stats.cohen`).
+- :func:`light_kappa` — Light (1971): the mean of the pairwise Cohen kappas, each pair over the
+  items both rated.  Undefined when any pair's kappa is undefined (the mean is then not the
+  published statistic).
+- :func:`conger_kappa` — Conger (1980): the multi-rater generalisation of Cohen's kappa, with
+  chance agreement from each rater's own category shares.  Missing ratings follow Gwet's
+  generalisation (Gwet 2014, *Handbook of Inter-Rater Reliability*, 4th ed., ch. 2-3):
+  observed agreement averages over the items with at least two ratings,
+  p_a = mean_i (Σ_kl w_kl r_ik r_il − r_i) / (r_i(r_i − 1)); rater g's share of category k is
+  p_gk = (items g put in k) / (items g rated), over every item g rated; chance agreement is
+  p_e = Σ_kl w_kl Σ_{g≠h} p_gk p_hl / (r(r − 1)), the mean over ordered rater pairs.
+
+No analytic standard error is attached to Light's or Conger's kappa: the interval comes from
+the item bootstrap (``*_features`` / ``*_from_sums``), which resamples items with all their
+ratings.
+
+Validated against: Fleiss (1971) diagnoses data as rater-coded columns (Light 0.459 in R irr's
+documentation; Conger 0.4418085 from irrCAC); irrCAC ``conger()`` and the mean of scikit-learn
+pairwise kappas on random data (test-only cross-checks).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from .cohen import _categories_iv, _cohen_estimate, _kappa_from_tables, weights_iv
+from .proportion import _confidence_level_iv
+from .results import Estimate
+
+# --------------------------------------------------------------------------- helpers
+
+
+def _matrix_iv(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
+    arr = np.asarray(codes)
+    if arr.ndim != 2:
+        raise ValueError(f"codes must be a 2-D array items × raters, got {arr.ndim} dimension(s)")
+    if arr.size and (arr.dtype.kind not in "iu" or arr.dtype.kind == "b"):
+        raise TypeError(f"codes must hold integer category codes (-1 = missing), got {arr.dtype}")
+    arr = arr.astype(np.int64, copy=False)
+    if arr.size and (arr.min() < -1 or arr.max() >= k):
+        raise ValueError(f"codes hold values outside -1 .. {k - 1}")
+    return arr
+
+
+def _rater_name(labels: Sequence[str] | None, g: int) -> str:
+    return str(labels[g]) if labels is not None else f"rater {g + 1}"
+
+
+def _pair_index(n_raters: int) -> tuple[np.ndarray, np.ndarray]:
+    g, h = np.triu_indices(n_raters, 1)
+    return g.astype(np.int64), h.astype(np.int64)
+
+
+def _pair_cells(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Flat cell index p·k² + a·k + b of each (item, pair) and a mask of pairs both rated."""
+    g, h = _pair_index(codes.shape[1])
+    a = codes[:, g]
+    b = codes[:, h]
+    valid = (a >= 0) & (b >= 0)
+    cell = np.arange(g.size, dtype=np.int64) * (k * k) + a * k + b
+    return cell, valid
+
+
+def pair_tables(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
+    """(n_pairs, k, k) int64 tables of rater pairs (g < h, in ``np.triu_indices`` order).
+
+    One ``np.bincount`` over all items and pairs; each table counts the items both raters rated.
+    """
+    k = _categories_iv(k)
+    c = _matrix_iv(codes, k)
+    n_pairs = c.shape[1] * (c.shape[1] - 1) // 2
+    cell, valid = _pair_cells(c, k)
+    counts = np.bincount(cell[valid], minlength=n_pairs * k * k)
+    return counts.reshape(n_pairs, k, k).astype(np.int64)
+
+
+def _item_agreement(codes: np.ndarray) -> tuple[int, int]:
+    """(items with ≥ 2 ratings, those on which every present rating is the same)."""
+    present = codes >= 0
+    m = present.sum(axis=1)
+    hi = np.where(present, codes, -1).max(axis=1)
+    lo = np.where(present, codes, np.iinfo(np.int64).max).min(axis=1)
+    multi = m >= 2
+    return int(multi.sum()), int((multi & (hi == lo)).sum())
+
+
+# --------------------------------------------------------------------------- pairwise Cohen
+
+
+def pairwise_cohen(
+    codes: np.ndarray | list[list[int]],
+    k: int,
+    *,
+    weights: np.ndarray | str | None = None,
+    confidence_level: float = 0.95,
+) -> list[list[Estimate | None]]:
+    """r×r matrix of Cohen's kappa between raters (rows/columns in ``codes`` column order).
+
+    Entry [g][h] is the kappa of raters g and h over the items both rated (the table has rater g
+    in rows); the diagonal is ``None``.  The matrix is symmetric: kappa and its FCE standard
+    errors do not change when the table is transposed (weights are symmetric).
+
+    Validated against: scikit-learn ``cohen_kappa_score`` per pair (test-only cross-check).
+    """
+    k = _categories_iv(k)
+    level = _confidence_level_iv(confidence_level)
+    c = _matrix_iv(codes, k)
+    w = weights_iv(weights, k)
+    r = c.shape[1]
+    n_pairs = r * (r - 1) // 2
+    cell, valid = _pair_cells(c, k)
+    tables = np.bincount(cell[valid], minlength=n_pairs * k * k).reshape(n_pairs, k, k)
+    tables = tables.astype(np.float64)
+    g_idx, h_idx = _pair_index(r)
+    out: list[list[Estimate | None]] = [[None] * r for _ in range(r)]
+    for p, (g, h) in enumerate(zip(g_idx.tolist(), h_idx.tolist(), strict=True)):
+        est = _cohen_estimate(tables[p], w, level)
+        out[g][h] = est
+        out[h][g] = est
+    return out
+
+
+# --------------------------------------------------------------------------- Light's kappa
+
+
+def light_kappa_features(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
+    """(n_items, n_pairs·k²) float64: per rater pair, the one-hot of the item's cell.
+
+    A pair's block is zero when either rating is missing.  Memory is n_items × r(r−1)/2 × k²
+    doubles.
+    """
+    k = _categories_iv(k)
+    c = _matrix_iv(codes, k)
+    n, r = c.shape
+    n_pairs = r * (r - 1) // 2
+    feats = np.zeros((n, n_pairs * k * k), dtype=np.float64)
+    cell, valid = _pair_cells(c, k)
+    rows = np.broadcast_to(np.arange(n)[:, None], cell.shape)
+    feats[rows[valid], cell[valid]] = 1.0
+    return feats
+
+
+def _pairs_from_width(width: int, k: int) -> int:
+    kk = k * k
+    if width % kk:
+        raise ValueError(f"sums must have a multiple of k² = {kk} columns, got {width}")
+    return width // kk
+
+
+def light_kappa_from_sums(
+    sums: np.ndarray, k: int, weights: np.ndarray | str | None = None
+) -> np.ndarray:
+    """Light's kappa from column sums of :func:`light_kappa_features`, shape (..., n_pairs·k²).
+
+    Mean over rater pairs of Cohen's kappa; NaN when any pair's kappa is undefined.
+    """
+    k = _categories_iv(k)
+    s = np.asarray(sums, dtype=np.float64)
+    n_pairs = _pairs_from_width(s.shape[-1], k)
+    if n_pairs < 1:
+        raise ValueError("Light's kappa needs at least two raters (one pair)")
+    return _light_parts(s, k, n_pairs, weights_iv(weights, k))[1]
+
+
+def _light_parts(
+    sums: np.ndarray, k: int, n_pairs: int, w: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """(pair kappas (..., n_pairs), their mean (...)); NaN propagates from undefined pairs."""
+    kappas = _kappa_from_tables(sums.reshape(sums.shape[:-1] + (n_pairs, k, k)), w)
+    return kappas, kappas.mean(axis=-1)
+
+
+def light_kappa(
+    codes: np.ndarray | list[list[int]],
+    k: int,
+    *,
+    weights: np.ndarray | str | None = None,
+    confidence_level: float = 0.95,
+    rater_labels: Sequence[str] | None = None,
+) -> Estimate:
+    """Light's (1971) kappa: the mean of Cohen's kappa over all pairs of raters.
+
+    Each pair uses the items both raters rated.  No analytic standard error: ``se`` and the
+    interval are ``None`` (use the item bootstrap with the features below).  ``extra`` holds
+    ``pair_kappas`` (list in ``np.triu_indices`` order, ``None`` where undefined) and ``pairs``.
+    ``items`` counts items with at least two ratings, ``agreeing`` those on which all agree.
+
+    Validated against: R irr documentation value 0.459 on the Fleiss (1971) diagnoses data;
+    mean of scikit-learn pairwise kappas on random data (test-only).
+    """
+    k = _categories_iv(k)
+    level = _confidence_level_iv(confidence_level)
+    c = _matrix_iv(codes, k)
+    r = c.shape[1]
+    items, agreeing = _item_agreement(c)
+    if r < 2:
+        return Estimate(
+            estimate=None,
+            confidence_level=level,
+            items=items,
+            agreeing=agreeing,
+            warnings=("Light's kappa is undefined: it needs at least two raters.",),
+        )
+    w = weights_iv(weights, k)
+    # Column sums of light_kappa_features, computed directly by one bincount (identical counts).
+    n_pairs = r * (r - 1) // 2
+    cell, valid = _pair_cells(c, k)
+    sums = np.bincount(cell[valid], minlength=n_pairs * k * k).astype(np.float64)
+    pair_k, mean = _light_parts(sums, k, n_pairs, w)
+    value = float(mean)
+    g_idx, h_idx = _pair_index(r)
+    pairs = [(int(g), int(h)) for g, h in zip(g_idx, h_idx, strict=True)]
+    extra: dict[str, object] = {
+        "pair_kappas": [None if not np.isfinite(v) else float(v) for v in pair_k],
+        "pairs": pairs,
+    }
+    if not np.isfinite(value):
+        bad = [
+            f"{_rater_name(rater_labels, g)} and {_rater_name(rater_labels, h)}"
+            for (g, h), v in zip(pairs, pair_k, strict=True)
+            if not np.isfinite(v)
+        ]
+        return Estimate(
+            estimate=None,
+            confidence_level=level,
+            items=items,
+            agreeing=agreeing,
+            extra=extra,
+            warnings=(
+                "Light's kappa is undefined: Cohen's kappa is undefined for "
+                f"{len(bad)} of {len(pairs)} rater pairs ({'; '.join(bad)}) because the pair has "
+                "no item in common or both put every shared item in the same category.",
+            ),
+        )
+    return Estimate(
+        estimate=value,
+        confidence_level=level,
+        items=items,
+        agreeing=agreeing,
+        extra=extra,
+    )
+
+
+# --------------------------------------------------------------------------- Conger's kappa
+
+
+def conger_kappa_features(
+    codes: np.ndarray | list[list[int]], k: int, weights: np.ndarray | str | None = None
+) -> np.ndarray:
+    """(n_items, 2 + r·k) float64 item-additive sums for Conger's kappa.
+
+    Columns: [0] 1 if the item has at least two ratings; [1] the item's weighted disagreement
+    Σ_kl (1 − w_kl) r_ik r_il / (r_i(r_i − 1)) (0 below two ratings); [2:] one-hot of each
+    rater's category (rater-major, r·k columns; zero where the rating is missing).
+    """
+    k = _categories_iv(k)
+    return _conger_features(_matrix_iv(codes, k), k, weights_iv(weights, k))
+
+
+def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
+    n, r = c.shape
+    present = c >= 0
+    rows, raters = np.nonzero(present)
+    cats = c[rows, raters]
+    counts = np.bincount(rows * k + cats, minlength=n * k).reshape(n, k).astype(np.float64)
+    m = counts.sum(axis=1)
+    multi = m >= 2
+    feats = np.zeros((n, 2 + r * k), dtype=np.float64)
+    feats[:, 0] = multi
+    dis = ((counts @ (1.0 - w)) * counts).sum(axis=1)
+    feats[multi, 1] = dis[multi] / (m[multi] * (m[multi] - 1.0))
+    feats[rows, 2 + raters * k + cats] = 1.0
+    return feats
+
+
+def conger_kappa_from_sums(
+    sums: np.ndarray, k: int, weights: np.ndarray | str | None = None
+) -> np.ndarray:
+    """Conger's kappa from column sums of :func:`conger_kappa_features`, shape (..., 2 + r·k).
+
+    NaN where undefined: no item with two ratings, a rater with no rating, or chance
+    agreement 1.
+    """
+    k = _categories_iv(k)
+    s = np.asarray(sums, dtype=np.float64)
+    width = s.shape[-1]
+    if width < 2 or (width - 2) % k:
+        raise ValueError(f"sums must have 2 + r·k columns for k = {k}, got {width}")
+    if (width - 2) // k < 2:
+        raise ValueError("Conger's kappa needs at least two raters")
+    return _conger_parts(s, k, weights_iv(weights, k))[0]
+
+
+def _conger_parts(
+    s: np.ndarray, k: int, w: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(kappa, 1 − p_a, 1 − p_e) from sums (..., 2 + r·k); kappa NaN where undefined."""
+    r = (s.shape[-1] - 2) // k
+    d = 1.0 - w
+    n2 = s[..., 0]
+    classif = s[..., 2:].reshape(s.shape[:-1] + (r, k))
+    n_g = classif.sum(axis=-1)
+    rated = (n_g > 0).all(axis=-1)
+    share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]  # p_gk
+    total = share.sum(axis=-2)  # Σ_g p_gk
+    # Σ_kl d_kl Σ_{g≠h} p_gk p_hl = Σ_kl d_kl [(Σ_g p_gk)(Σ_h p_hl) − Σ_g p_gk p_gl]
+    cross = ((total @ d) * total).sum(axis=-1) - ((share @ d) * share).sum(axis=(-2, -1))
+    dis_exp = cross / (r * (r - 1.0))  # 1 − p_e
+    dis_obs = np.divide(s[..., 1], n2, out=np.full(np.shape(n2), np.nan), where=n2 > 0)  # 1 − p_a
+    ok = (n2 > 0) & rated & (dis_exp > 0.0)
+    ratio = np.divide(dis_obs, dis_exp, out=np.full(np.shape(n2), np.nan), where=ok)
+    return 1.0 - ratio, dis_obs, dis_exp
+
+
+def conger_kappa(
+    codes: np.ndarray | list[list[int]],
+    k: int,
+    *,
+    weights: np.ndarray | str | None = None,
+    confidence_level: float = 0.95,
+    rater_labels: Sequence[str] | None = None,
+) -> Estimate:
+    """Conger's (1980) kappa for several raters, missing ratings per Gwet (2014).
+
+    Raters who rated nothing are left out with a warning.  No analytic standard error here:
+    ``se`` and the interval are ``None`` (use the item bootstrap with the features).  ``extra``
+    holds ``p_a`` and ``p_e``.  ``items`` counts items with at least two ratings (the ones that
+    enter observed agreement), ``agreeing`` those on which all ratings agree.
+
+    Validated against: Fleiss (1971) diagnoses data as rater-coded columns (0.4418085, irrCAC);
+    irrCAC ``conger()`` on random data with missing ratings (test-only cross-check).
+    """
+    k = _categories_iv(k)
+    level = _confidence_level_iv(confidence_level)
+    c = _matrix_iv(codes, k)
+    w = weights_iv(weights, k)
+    warnings: list[str] = []
+    rated = (c >= 0).any(axis=0)
+    if not rated.all():
+        idle = [_rater_name(rater_labels, g) for g in np.flatnonzero(~rated)]
+        warnings.append(f"Conger's kappa leaves out raters with no rating: {', '.join(idle)}.")
+        c = c[:, rated]
+    items, agreeing = _item_agreement(c)
+
+    def undefined(reason: str) -> Estimate:
+        return Estimate(
+            estimate=None,
+            confidence_level=level,
+            items=items,
+            agreeing=agreeing,
+            warnings=(*warnings, reason),
+        )
+
+    if c.shape[1] < 2:
+        return undefined("Conger's kappa is undefined: it needs at least two raters with ratings.")
+    if items == 0:
+        return undefined("Conger's kappa is undefined: no item has two or more ratings.")
+    # One code path with the bootstrap: the point estimate comes from the feature sums.
+    sums = _conger_features(c, k, w).sum(axis=0)
+    kappa_arr, dis_obs, dis_exp = _conger_parts(sums, k, w)
+    value = float(kappa_arr)
+    extra: dict[str, object] = {"p_a": 1.0 - float(dis_obs), "p_e": 1.0 - float(dis_exp)}
+    if not np.isfinite(value):
+        return Estimate(
+            estimate=None,
+            confidence_level=level,
+            items=items,
+            agreeing=agreeing,
+            extra=extra,
+            warnings=(
+                *warnings,
+                "Conger's kappa is undefined: every rater put every item in the same category, "
+                "so chance agreement is 1.",
+            ),
+        )
+    if items < c.shape[0]:
+        warnings.append(
+            f"{c.shape[0] - items} item(s) with fewer than two ratings do not enter the observed "
+            "agreement of Conger's kappa (their single ratings still count in the raters' shares)."
+        )
+    return Estimate(
+        estimate=value,
+        confidence_level=level,
+        items=items,
+        agreeing=agreeing,
+        warnings=tuple(warnings),
+        extra=extra,
+    )

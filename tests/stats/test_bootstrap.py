@@ -1,0 +1,229 @@
+"""Item bootstrap over feature patterns: reproducibility, sampling law, agreement with scipy.
+
+Sources: Efron (1987, JASA 82:171-185) and Efron & Tibshirani (1993, An Introduction to the
+Bootstrap, ch. 13-14) for the percentile and BCa intervals; scipy.stats.bootstrap as an
+independent implementation (test-only).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from reportgen.stats.bootstrap import bootstrap, bootstrap_many, draw_pattern_counts
+from reportgen.stats.fleiss import fleiss_kappa, fleiss_kappa_features, fleiss_kappa_from_sums
+from reportgen.stats.gwet import gwet_ac, gwet_ac_features, gwet_ac_from_sums
+from reportgen.stats.tables import compress, count_table
+
+
+def _study(seed: int, n: int = 60, raters: int = 4, k: int = 3, agree: float = 0.6):
+    rng = np.random.default_rng(seed)
+    truth = rng.integers(0, k, n)
+    codes = np.where(rng.random((n, raters)) < agree, truth[:, None], rng.integers(0, k, (n, raters)))
+    codes[rng.random((n, raters)) < 0.1] = -1
+    return count_table(codes, k)
+
+
+def test_reproducible_under_seed_and_seed_matters() -> None:
+    f = fleiss_kappa_features(_study(1))
+    a = bootstrap(f, fleiss_kappa_from_sums, resamples=500, seed=7)
+    b = bootstrap(f, fleiss_kappa_from_sums, resamples=500, seed=7)
+    c = bootstrap(f, fleiss_kappa_from_sums, resamples=500, seed=8)
+    assert a == b
+    assert (a.ci_low, a.ci_high) != (c.ci_low, c.ci_high)
+    assert a.seed == 7 and a.resamples == 500 and a.valid == 500
+    assert a.method == "bootstrap BCa"
+    d = bootstrap(f, fleiss_kappa_from_sums, resamples=500, rng=np.random.default_rng(7))
+    assert (d.ci_low, d.ci_high) == (a.ci_low, a.ci_high) and d.seed is None
+
+
+def test_estimate_is_the_point_estimate() -> None:
+    c = _study(2)
+    r = bootstrap(fleiss_kappa_features(c), fleiss_kappa_from_sums, resamples=200, seed=1)
+    assert r.estimate == pytest.approx(fleiss_kappa(c).overall.estimate, abs=1e-14)
+    assert r.ci_low < r.estimate < r.ci_high
+
+
+@pytest.mark.parametrize(
+    "mult",
+    [
+        [5, 1, 1, 3, 40],  # few patterns: conditional binomials only
+        [1] * 150 + [2] * 60 + [3] * 30 + [7] * 10 + list(range(8, 60)) + [500, 900],  # mixed
+    ],
+)
+def test_pattern_counts_follow_the_multinomial_law(mult: list[int]) -> None:
+    m = np.array(mult)
+    n = int(m.sum())
+    reps = 20000
+    w = draw_pattern_counts(np.random.default_rng(3), m, reps)
+    assert w.shape == (reps, m.size)
+    assert np.all(w.sum(1) == n)
+    p = m / n
+    # Means n p and variances n p (1 - p) of the multinomial, within 5 Monte Carlo SEs.
+    sd = np.sqrt(n * p * (1 - p))
+    assert np.all(np.abs(w.mean(0) - n * p) < 5 * sd / np.sqrt(reps) + 1e-12)
+    np.testing.assert_allclose(w.var(0, ddof=1), sd**2, rtol=0.08)
+    # Covariances -n p_i p_j: between the rare patterns taken together and the largest one, and
+    # between two single patterns; tolerance 5 Monte Carlo SEs (about sd_i sd_j / sqrt(reps)).
+    rare = m < 8
+    tot = w[:, rare].sum(1)
+    p_rare = p[rare].sum()
+    cov = np.cov(tot, w[:, -1])[0, 1]
+    tol = 5 * np.sqrt(n * p_rare * (1 - p_rare)) * sd[-1] / np.sqrt(reps)
+    assert abs(cov - (-n * p_rare * p[-1])) < tol
+    cov01 = np.cov(w[:, 0], w[:, -2])[0, 1]
+    assert abs(cov01 - (-n * p[0] * p[-2])) < 5 * sd[0] * sd[-2] / np.sqrt(reps)
+
+
+def test_same_law_with_patterns_and_multiplicities() -> None:
+    c = _study(4, n=200)
+    pat = compress(c)
+    f_items = fleiss_kappa_features(c)
+    f_pat = fleiss_kappa_features(pat.rows)
+    a = bootstrap(f_items, fleiss_kappa_from_sums, resamples=4000, seed=1, method="percentile")
+    b = bootstrap(
+        f_pat, fleiss_kappa_from_sums, resamples=4000, seed=2, method="percentile",
+        multiplicity=pat.multiplicity,
+    )
+    assert a.estimate == pytest.approx(b.estimate, abs=1e-14)
+    assert a.se == pytest.approx(b.se, rel=0.08)
+
+
+def test_matches_scipy_bootstrap_on_item_resampling() -> None:
+    from scipy import stats
+
+    c = _study(5, n=40)
+    idx = np.arange(c.shape[0])
+
+    def kappa_of(items: np.ndarray) -> float:
+        return float(fleiss_kappa_from_sums(fleiss_kappa_features(c[items]).sum(0)))
+
+    ours = bootstrap(fleiss_kappa_features(c), fleiss_kappa_from_sums, resamples=6000, seed=11)
+    ref = stats.bootstrap(
+        (idx,), kappa_of, vectorized=False, n_resamples=6000, method="BCa",
+        random_state=np.random.default_rng(12),
+    )
+    se = ref.standard_error
+    assert ours.se == pytest.approx(se, rel=0.08)
+    assert ours.ci_low == pytest.approx(ref.confidence_interval.low, abs=0.2 * se)
+    assert ours.ci_high == pytest.approx(ref.confidence_interval.high, abs=0.2 * se)
+    pct = bootstrap(
+        fleiss_kappa_features(c), fleiss_kappa_from_sums, resamples=6000, seed=11,
+        method="percentile",
+    )
+    ref_p = stats.bootstrap(
+        (idx,), kappa_of, vectorized=False, n_resamples=6000, method="percentile",
+        random_state=np.random.default_rng(13),
+    )
+    assert pct.ci_low == pytest.approx(ref_p.confidence_interval.low, abs=0.2 * se)
+    assert pct.ci_high == pytest.approx(ref_p.confidence_interval.high, abs=0.2 * se)
+
+
+def test_bootstrap_se_close_to_analytic_se_on_a_large_sample() -> None:
+    c = _study(6, n=3000, raters=5, k=4)
+    pat = compress(c)
+    r = bootstrap(
+        gwet_ac_features(pat.rows), gwet_ac_from_sums, resamples=3000, seed=3,
+        multiplicity=pat.multiplicity,
+    )
+    assert r.se == pytest.approx(gwet_ac(c).se, rel=0.07)
+    rf = bootstrap(
+        fleiss_kappa_features(pat.rows), fleiss_kappa_from_sums, resamples=3000, seed=3,
+        multiplicity=pat.multiplicity,
+    )
+    assert rf.se == pytest.approx(fleiss_kappa(c).overall.se, rel=0.07)
+
+
+def test_bca_close_to_percentile_for_a_symmetric_unbiased_statistic() -> None:
+    rng = np.random.default_rng(9)
+    x = rng.normal(size=4000)
+    x = np.concatenate([x, -x])  # exactly symmetric sample
+    f = np.stack([x, np.ones_like(x)], axis=1)
+
+    def mean(s: np.ndarray) -> np.ndarray:
+        return s[..., 0] / s[..., 1]
+
+    bca = bootstrap(f, mean, resamples=4000, seed=1, method="bca")
+    pct = bootstrap(f, mean, resamples=4000, seed=1, method="percentile")
+    assert bca.ci_low == pytest.approx(pct.ci_low, abs=0.05 * pct.se)
+    assert bca.ci_high == pytest.approx(pct.ci_high, abs=0.05 * pct.se)
+    # and both near the normal interval mean ± 1.96 SE/sqrt(n)
+    se = x.std(ddof=1) / np.sqrt(x.size)
+    assert pct.ci_high == pytest.approx(1.959964 * se, abs=0.1 * se)
+
+
+def test_bca_shifts_for_a_skewed_statistic() -> None:
+    """For the variance of a skewed sample BCa moves the interval up relative to the percentile
+    interval (Efron & Tibshirani 1993, ch. 14: the percentile interval is too far left)."""
+    rng = np.random.default_rng(10)
+    x = rng.exponential(size=80)
+    f = np.stack([np.ones_like(x), x, x * x], axis=1)
+
+    def var(s: np.ndarray) -> np.ndarray:
+        n = s[..., 0]
+        return (s[..., 2] - s[..., 1] ** 2 / n) / (n - 1)
+
+    bca = bootstrap(f, var, resamples=4000, seed=2)
+    pct = bootstrap(f, var, resamples=4000, seed=2, method="percentile")
+    assert bca.ci_high > pct.ci_high and bca.ci_low > pct.ci_low
+
+
+def test_undefined_replicates_are_counted_and_left_out() -> None:
+    # The statistic is undefined when the resample contains no item of the rare kind.
+    x = np.zeros(30)
+    x[0] = 1.0
+    f = np.stack([x, np.ones(30)], axis=1)
+
+    def stat(s: np.ndarray) -> np.ndarray:
+        return np.where(s[..., 0] > 0, s[..., 1] / np.maximum(s[..., 0], 1), np.nan)
+
+    r = bootstrap(f, stat, resamples=2000, seed=4, method="percentile")
+    assert r.valid < 2000
+    # P(no draw of the rare item) = (29/30)^30 = 0.362; within 5 Monte Carlo SEs.
+    assert (2000 - r.valid) / 2000 == pytest.approx((29 / 30) ** 30, abs=5 * 0.0108)
+    assert any("undefined" in w and "left out" in w for w in r.warnings)
+
+
+def test_degenerate_inputs() -> None:
+    same = np.tile([[1.0, 1.0]], (10, 1))
+    r = bootstrap(same, lambda s: s[..., 0] / s[..., 1], resamples=100, seed=1)
+    assert r.ci_low == r.ci_high == pytest.approx(1.0)
+    assert any("same value" in w for w in r.warnings)
+    undefined = bootstrap(same, lambda s: s[..., 0] * np.nan, resamples=100, seed=1)
+    assert undefined.estimate is None and undefined.ci_low is None
+    assert undefined.warnings
+
+
+def test_bootstrap_many_shares_the_item_draws() -> None:
+    c = _study(7)
+    f = fleiss_kappa_features(c)
+    g = gwet_ac_features(c)
+    out = bootstrap_many(
+        {"a": f, "b": f, "ac1": g},
+        {"a": fleiss_kappa_from_sums, "b": fleiss_kappa_from_sums, "ac1": gwet_ac_from_sums},
+        resamples=300, seed=5,
+    )
+    assert out["a"] == out["b"]
+    assert out["ac1"].estimate == pytest.approx(gwet_ac(c).estimate, abs=1e-14)
+    again = bootstrap_many(
+        {"a": f, "b": f, "ac1": g},
+        {"a": fleiss_kappa_from_sums, "b": fleiss_kappa_from_sums, "ac1": gwet_ac_from_sums},
+        resamples=300, seed=5,
+    )
+    assert again == out
+
+
+def test_input_validation() -> None:
+    f = np.ones((5, 2))
+    with pytest.raises(ValueError, match="method"):
+        bootstrap(f, lambda s: s[..., 0], method="basic")
+    with pytest.raises(ValueError, match="either seed or rng"):
+        bootstrap(f, lambda s: s[..., 0], seed=1, rng=np.random.default_rng(1))
+    with pytest.raises(ValueError, match="resamples"):
+        bootstrap(f, lambda s: s[..., 0], resamples=1)
+    with pytest.raises(ValueError, match="2-D"):
+        bootstrap(np.ones(5), lambda s: s[..., 0])
+    with pytest.raises(ValueError, match="same keys"):
+        bootstrap_many({"a": f}, {"b": lambda s: s[..., 0]})
+    with pytest.raises(ValueError, match="multiplicity"):
+        bootstrap(f, lambda s: s[..., 0], multiplicity=np.ones(3, dtype=int))

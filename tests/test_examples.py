@@ -1,0 +1,182 @@
+"""The demo studies in studies/: each loads, checks, analyses and gets its intended verdict.
+
+The scenarios and their data are invented for reportgen (studies/simulate.py).  The intended
+outcomes (issue 4, "Must show"): one study passes, one must improve, and one's verdict turns on
+the interval — its point estimate meets the pass level, its lower bound does not.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+from reportgen.analysis import analyse
+from reportgen.ratings import load_ratings
+from reportgen.study import load_study
+
+ROOT = Path(__file__).resolve().parents[1]
+STUDIES = ROOT / "studies"
+STUDY_FILES = sorted(STUDIES.glob("*/study.yaml"))
+HAS_VERDICT = importlib.util.find_spec("reportgen.verdict") is not None
+
+#: folder -> (id, scale, items, raters, trials, has reference, intended verdict)
+EXPECTED: dict[str, tuple[str, str, int, int, int, bool, str]] = {
+    "finish-grading": ("FINISH-GRADE-DEMO", "ordinal", 48, 4, 2, True, "PASS"),
+    "seal-check": ("SEAL-CHECK-DEMO", "binary", 50, 3, 3, True, "IMPROVE"),
+    "defect-triage": ("RETURNS-TRIAGE-DEMO", "nominal", 64, 5, 1, False, "IMPROVE"),
+}
+
+
+def _simulate_module() -> Any:
+    spec = importlib.util.spec_from_file_location("demo_simulate", STUDIES / "simulate.py")
+    assert spec is not None and spec.loader is not None
+    mod = importlib.util.module_from_spec(spec)
+    sys.modules["demo_simulate"] = mod
+    spec.loader.exec_module(mod)
+    return mod
+
+
+def _judged(folder: str) -> tuple[Any, dict[str, Any], dict[str, Any]]:
+    """The study, its results and the verdict helper's output for them."""
+    from reportgen.verdict import judge
+
+    study = load_study(STUDIES / folder / "study.yaml")
+    results = analyse(study, load_ratings(study))
+    return study, results, judge(study, results)
+
+
+def test_every_demo_study_is_expected() -> None:
+    assert sorted(p.parent.name for p in STUDY_FILES) == sorted(EXPECTED)
+
+
+def test_simulation_regenerates_every_csv_byte_for_byte() -> None:
+    files = _simulate_module().generate()
+    assert len(files) == 8  # ratings + items for three studies, reference for two
+    for path, text in files.items():
+        assert path.read_bytes() == text.encode("utf-8"), f"{path} differs from what simulate.py makes"
+
+
+@pytest.mark.parametrize("folder", sorted(EXPECTED))
+def test_demo_study_loads_checks_and_analyses(folder: str) -> None:
+    sid, scale, n_items, n_raters, n_trials, has_ref, _ = EXPECTED[folder]
+    study = load_study(STUDIES / folder / "study.yaml")
+    assert (study.id, study.scale, study.trials, len(study.raters)) == (sid, scale, n_trials, n_raters)
+    ratings = load_ratings(study)
+    assert (ratings.n_items, ratings.n_raters, ratings.n_trials) == (n_items, n_raters, n_trials)
+    assert ratings.has_reference is has_ref
+    results = analyse(study, ratings)
+    assert results["schema"] == "reportgen-results/1"
+    assert results["design"]["items"] == n_items
+    assert json.loads(json.dumps(results, allow_nan=False)) == results  # JSON-ready, no NaN
+    fk = results["reproducibility"]["fleiss_kappa"]
+    assert fk["ci_low"] < fk["estimate"] < fk["ci_high"]
+    if has_ref:
+        assert set(results["accuracy"]) == set(study.rater_ids)
+    else:
+        assert "accuracy" not in results
+    if n_trials >= 2:
+        assert set(results["repeatability"]) == set(study.rater_ids)
+    else:
+        assert "repeatability" not in results
+
+
+def test_missing_ratings_of_the_triage_study_are_allowed_and_counted() -> None:
+    study = load_study(STUDIES / "defect-triage" / "study.yaml")
+    assert study.missing == "allow"
+    ratings = load_ratings(study)
+    assert int((ratings.codes < 0).sum()) == _simulate_module().TRIAGE.n_missing == 5
+
+
+@pytest.mark.skipif(importlib.util.find_spec("reportgen.commands.check") is None, reason="check command not there yet")
+@pytest.mark.parametrize("folder", sorted(EXPECTED))
+def test_check_command_passes_on_demo_study(folder: str) -> None:
+    from click.testing import CliRunner
+
+    from reportgen.cli import cli
+
+    res = CliRunner().invoke(cli, ["check", str(STUDIES / folder / "study.yaml")])
+    assert res.exit_code == 0, res.output
+    assert "error" not in res.output.lower()
+
+
+def test_demo_studies_use_the_optional_blocks() -> None:
+    studies = {p.parent.name: load_study(p) for p in STUDY_FILES}
+    assert [f for f, s in studies.items() if s.safety_related] == ["seal-check"]
+    assert studies["seal-check"].certification is not None
+    assert all(s.criteria is not None for s in studies.values())
+    assert all(s.signoff.prepared_by and s.signoff.reviewed_by for s in studies.values())
+    assert all(isinstance(s.plan, dict) and "seed" in s.plan for s in studies.values())
+
+
+def test_seal_check_has_a_stricter_and_a_more_lenient_rater() -> None:
+    study = load_study(STUDIES / "seal-check" / "study.yaml")
+    acc = analyse(study, load_ratings(study))["accuracy"]
+    fa = {r: acc[r]["false_alarm_rate"]["estimate"] for r in acc}
+    miss = {r: acc[r]["miss_rate"]["estimate"] for r in acc}
+    assert max(fa, key=fa.__getitem__) == "INS-B"  # stricter: rejects good seals
+    assert max(miss, key=miss.__getitem__) == "INS-C"  # more lenient: passes weak seals
+    assert fa["INS-B"] > 2 * fa["INS-A"] and miss["INS-C"] > 3 * miss["INS-A"]
+
+
+@pytest.mark.skipif(not HAS_VERDICT, reason="verdict module not there yet")
+@pytest.mark.parametrize("folder", sorted(EXPECTED))
+def test_demo_study_gets_its_intended_verdict(folder: str) -> None:
+    from reportgen.verdict import validate_criteria
+
+    study, results, judged = _judged(folder)
+    assert validate_criteria(study, results) == []
+    assert judged["verdict"]["outcome"] == EXPECTED[folder][6]
+
+
+@pytest.mark.skipif(not HAS_VERDICT, reason="verdict module not there yet")
+def test_one_verdict_turns_on_the_interval() -> None:
+    _, _, judged = _judged("defect-triage")
+    (rule,) = judged["verdict"]["rules"]
+    assert rule["measure"] == "reproducibility.fleiss_kappa" and rule["judge"] == "lower_bound"
+    assert rule["estimate"] >= rule["pass"] > rule["ci_low"]  # the estimate meets, the bound does not
+    assert rule["outcome"] == "marginal"
+
+
+@pytest.mark.skipif(not HAS_VERDICT, reason="verdict module not there yet")
+def test_passing_study_clears_every_level_with_room() -> None:
+    _, _, judged = _judged("finish-grading")
+    for rule in judged["verdict"]["rules"]:
+        assert rule["outcome"] == "meets"
+        assert rule["margin"] > 0.01, rule  # not a knife-edge pass
+
+
+@pytest.mark.skipif(not HAS_VERDICT, reason="verdict module not there yet")
+def test_seal_check_certifies_only_the_inspector_on_target() -> None:
+    _, _, judged = _judged("seal-check")
+    outcome = {i["rater"]: i["outcome"] for i in judged["certification"]["inspectors"]}
+    assert outcome == {"INS-A": "certified", "INS-B": "not certified", "INS-C": "not certified"}
+
+
+def test_demo_command_runs_every_study(tmp_path: Path) -> None:
+    from click.testing import CliRunner
+
+    from reportgen.cli import cli
+
+    res = CliRunner().invoke(cli, ["demo", "--output", str(tmp_path), "--studies", str(STUDIES)])
+    assert res.exit_code == 0, res.output
+    for sid, *_ in EXPECTED.values():
+        assert sid in res.output
+        assert (tmp_path / sid).is_dir() and any((tmp_path / sid).iterdir())
+    if HAS_VERDICT:
+        for sid, *_rest, verdict in EXPECTED.values():
+            assert f"{sid}:" in res.output and verdict in res.output.split(f"{sid}:")[1].splitlines()[0]
+
+
+def test_demo_command_quiet_prints_nothing(tmp_path: Path) -> None:
+    from click.testing import CliRunner
+
+    from reportgen.cli import cli
+
+    res = CliRunner().invoke(cli, ["demo", "--quiet", "--output", str(tmp_path)])
+    assert res.exit_code == 0, res.output
+    assert res.output == ""
