@@ -118,7 +118,13 @@ class Advice:
 
 
 def simulate_ratings(
-    rng: np.random.Generator, *, n_items: int, shares: np.ndarray, raters: int, trials: int, agreement: float
+    rng: np.random.Generator,
+    *,
+    n_items: int,
+    shares: np.ndarray,
+    raters: int,
+    trials: int,
+    agreement: float,
 ) -> tuple[np.ndarray, np.ndarray]:
     """One simulated study: ``codes[i, r, t]`` and the true categories ``truth[i]``."""
     k = len(shares)
@@ -138,7 +144,9 @@ def _counts(codes2d: np.ndarray, k: int) -> np.ndarray:
     return np.stack([(codes2d == c).sum(axis=1) for c in range(k)], axis=1)
 
 
-def _measures(study: Study, *, has_reference: bool, defect: int | None, k: int, confidence: float) -> list[tuple[str, str, MeasureFn]]:
+def _measures(
+    study: Study, *, has_reference: bool, defect: int | None, k: int, confidence: float
+) -> list[tuple[str, str, MeasureFn]]:
     from .stats.cohen import cohen_kappa
     from .stats.fleiss import fleiss_kappa
     from .stats.proportion import proportion
@@ -147,7 +155,9 @@ def _measures(study: Study, *, has_reference: bool, defect: int | None, k: int, 
     out: list[tuple[str, str, MeasureFn]] = []
 
     def fleiss_all(codes: np.ndarray, truth: np.ndarray) -> Interval:
-        e = fleiss_kappa(_counts(codes.reshape(codes.shape[0], -1), k), confidence_level=confidence).overall
+        e = fleiss_kappa(
+            _counts(codes.reshape(codes.shape[0], -1), k), confidence_level=confidence
+        ).overall
         return e.estimate, e.ci_low, e.ci_high
 
     def fleiss_rater(codes: np.ndarray, truth: np.ndarray) -> Interval:
@@ -173,12 +183,36 @@ def _measures(study: Study, *, has_reference: bool, defect: int | None, k: int, 
         return e.estimate, e.ci_low, e.ci_high
 
     if len(study.raters) >= 2:
-        out.append(("reproducibility.fleiss_kappa", "Fleiss' kappa among all ratings (reproducibility)", fleiss_all))
+        out.append(
+            (
+                "reproducibility.fleiss_kappa",
+                "Fleiss' kappa among all ratings (reproducibility)",
+                fleiss_all,
+            )
+        )
     if study.trials >= 2:
-        out.append(("repeatability.fleiss_kappa", "Fleiss' kappa of one rater's trials (repeatability)", fleiss_rater))
+        out.append(
+            (
+                "repeatability.fleiss_kappa",
+                "Fleiss' kappa of one rater's trials (repeatability)",
+                fleiss_rater,
+            )
+        )
     if has_reference:
-        out.append(("accuracy.cohen_kappa", "Cohen's kappa of one rater against the reference (one trial)", cohen_ref))
-        out.append(("accuracy.effectiveness", "Effectiveness of one rater (ratings matching the reference)", effectiveness))
+        out.append(
+            (
+                "accuracy.cohen_kappa",
+                "Cohen's kappa of one rater against the reference (one trial)",
+                cohen_ref,
+            )
+        )
+        out.append(
+            (
+                "accuracy.effectiveness",
+                "Effectiveness of one rater (ratings matching the reference)",
+                effectiveness,
+            )
+        )
         if defect is not None:
             out.append(("accuracy.miss_rate", "Miss rate of one rater", miss_rate))
     return out
@@ -200,7 +234,9 @@ def _simulate_measure(
     halves: list[float] = []
     ests: list[float] = []
     for _ in range(runs):
-        codes, truth = simulate_ratings(rng, n_items=n_items, shares=shares, raters=raters, trials=trials, agreement=agreement)
+        codes, truth = simulate_ratings(
+            rng, n_items=n_items, shares=shares, raters=raters, trials=trials, agreement=agreement
+        )
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             est, lo, hi = fn(codes, truth)
@@ -212,7 +248,9 @@ def _simulate_measure(
         return HalfWidthRow(n_items, None, None, float(np.mean(ests)) if ests else None, 0)
     h = np.asarray(halves)
     se = float(h.std(ddof=1) / math.sqrt(len(h))) if len(h) > 1 else None
-    return HalfWidthRow(n_items, float(h.mean()), se, float(np.mean(ests)) if ests else None, len(h))
+    return HalfWidthRow(
+        n_items, float(h.mean()), se, float(np.mean(ests)) if ests else None, len(h)
+    )
 
 
 def _fit_needed(rows: Sequence[HalfWidthRow], target: float) -> int | None:
@@ -236,7 +274,9 @@ def _fit_needed(rows: Sequence[HalfWidthRow], target: float) -> int | None:
 def _shares(study: Study, items: Sequence[Any] | None) -> tuple[np.ndarray, str]:
     k = len(study.categories)
     if items:
-        counts = np.array([sum(1 for it in items if it.reference == c) for c in study.category_codes], dtype=float)
+        counts = np.array(
+            [sum(1 for it in items if it.reference == c) for c in study.category_codes], dtype=float
+        )
         if counts.sum() > 0 and (counts > 0).sum() >= 2:
             return counts / counts.sum(), "item list"
     return np.full(k, 1.0 / k), "equal shares (no item list)"
@@ -248,7 +288,8 @@ def item_set_checks(study: Study, items: Sequence[Any]) -> list[ItemSetCheck]:
     out = [
         ItemSetCheck(
             "items",
-            f"{n} items" + ("" if n >= MIN_ITEMS else f"; fewer than {MIN_ITEMS}, intervals will be wide"),
+            f"{n} items"
+            + ("" if n >= MIN_ITEMS else f"; fewer than {MIN_ITEMS}, intervals will be wide"),
             n >= MIN_ITEMS,
             COMMON,
         )
@@ -262,7 +303,9 @@ def item_set_checks(study: Study, items: Sequence[Any]) -> list[ItemSetCheck]:
         if share < lo:
             finding += "; with too few items near a category limit the study shows little about the hard calls"
         elif share > hi:
-            finding += "; with this many borderline items agreement will look worse than at the station"
+            finding += (
+                "; with this many borderline items agreement will look worse than at the station"
+            )
         out.append(ItemSetCheck("borderline", finding, ok, COMMON))
     else:
         out.append(
@@ -273,6 +316,8 @@ def item_set_checks(study: Study, items: Sequence[Any]) -> list[ItemSetCheck]:
                 COMMON,
             )
         )
+    if not any(getattr(it, "reference", None) is not None for it in items):
+        return out  # no references given: category shares cannot be checked
     for c in study.categories:
         cnt = sum(1 for it in items if it.reference == c.code)
         share = cnt / n
@@ -281,7 +326,11 @@ def item_set_checks(study: Study, items: Sequence[Any]) -> list[ItemSetCheck]:
             ItemSetCheck(
                 f"category {c.code}",
                 f"{cnt} items ({100 * share:.0f} %) with reference {c.code} ({c.label})"
-                + ("" if ok else f"; aim for at least {MIN_CATEGORY_ITEMS} items and {100 * MIN_CATEGORY_SHARE:.0f} % per category"),
+                + (
+                    ""
+                    if ok
+                    else f"; aim for at least {MIN_CATEGORY_ITEMS} items and {100 * MIN_CATEGORY_SHARE:.0f} % per category"
+                ),
                 ok,
                 COMMON,
             )
@@ -323,18 +372,29 @@ def zero_failure_sizes(study: Study) -> list[ZeroFailure]:
             continue
         measure = str(rule.get("measure", ""))
         level = rule.get("pass")
-        if measure.endswith("miss_rate") and isinstance(level, (int, float)) and 0 < float(level) < 1:
+        if (
+            measure.endswith("miss_rate")
+            and isinstance(level, (int, float))
+            and 0 < float(level) < 1
+        ):
             r = 1.0 - float(level)
             out.append(
                 ZeroFailure(
-                    r, conf, zero_failure_sample_size(r, conf),
+                    r,
+                    conf,
+                    zero_failure_sample_size(r, conf),
                     f"criterion {measure}: miss rate at most {level} shown at {100 * conf:g} % confidence "
                     "with no miss at all",
                 )
             )
     for r, c in ZERO_FAILURE_PAIRS:
         out.append(
-            ZeroFailure(r, c, zero_failure_sample_size(r, c), f"reference figure: R = {100 * r:g} %, C = {100 * c:g} %")
+            ZeroFailure(
+                r,
+                c,
+                zero_failure_sample_size(r, c),
+                f"reference figure: R = {100 * r:g} %, C = {100 * c:g} %",
+            )
         )
     return out
 
@@ -361,15 +421,25 @@ def advise(
     counts = sorted({int(n) for n in item_counts if int(n) >= 2})
     shares, shares_source = _shares(study, items)
     k = len(shares)
-    defect = study.category_codes.index(study.defect_category) if study.defect_category is not None else None
-    has_reference = bool(items) or study.reference_path is not None or study.defect_category is not None
+    defect = (
+        study.category_codes.index(study.defect_category)
+        if study.defect_category is not None
+        else None
+    )
+    has_reference = (
+        any(getattr(it, "reference", None) is not None for it in items or ())
+        or study.reference_path is not None
+        or study.defect_category is not None
+    )
     conf = float(study.confidence)
     rng = np.random.default_rng(seed)
     raters, trials = len(study.raters), study.trials
     sim = dict(shares=shares, raters=raters, trials=trials, agreement=agreement)
 
     measures: list[MeasureAdvice] = []
-    for name, title, fn in _measures(study, has_reference=has_reference, defect=defect, k=k, confidence=conf):
+    for name, title, fn in _measures(
+        study, has_reference=has_reference, defect=defect, k=k, confidence=conf
+    ):
         rows = []
         for n in counts:
             if progress:
@@ -421,8 +491,12 @@ def format_advice(adv: Advice) -> str:
         f"Sample-size advice for {adv.study_id} ({adv.scale} scale, {adv.raters} rater(s), {adv.trials} trial(s))",
         f"Assumed agreement: {adv.agreement:g} (kappa of a rater against the reference); "
         f"between two ratings about {adv.agreement_between_ratings:.2f}",
-        "Category shares (" + adv.shares_source + "): "
-        + ", ".join(f"{c} {100 * s:.0f} %" for c, s in zip(adv.categories, adv.shares, strict=True)),
+        "Category shares ("
+        + adv.shares_source
+        + "): "
+        + ", ".join(
+            f"{c} {100 * s:.0f} %" for c, s in zip(adv.categories, adv.shares, strict=True)
+        ),
         f"Target half-width of the {pct} interval: {adv.target_half_width:g}; "
         f"{adv.runs} simulated studies per item count (seed {adv.seed})",
         "",
@@ -438,8 +512,14 @@ def format_advice(adv: Advice) -> str:
         if m.items_needed is None:
             lines.append("  Items needed for the target: could not be found")
         else:
-            chk = "" if m.check_half_width is None else f" (simulated there: {m.check_half_width:.3f} ±{(m.check_sim_error or 0):.3f})"
-            lines.append(f"  Items needed for a half-width of {adv.target_half_width:g}: {m.items_needed}{chk}")
+            chk = (
+                ""
+                if m.check_half_width is None
+                else f" (simulated there: {m.check_half_width:.3f} ±{(m.check_sim_error or 0):.3f})"
+            )
+            lines.append(
+                f"  Items needed for a half-width of {adv.target_half_width:g}: {m.items_needed}{chk}"
+            )
         lines.append("")
     if adv.item_checks:
         lines.append("The item set:")
@@ -447,10 +527,16 @@ def format_advice(adv: Advice) -> str:
             lines.append(f"  [{'ok' if c.ok else 'look'}] {c.finding} ({c.basis})")
         lines.append("")
     if adv.zero_failure:
-        lines.append("Zero-failure sizes: defect-reference ratings with no miss needed, n = ln(1−C)/ln(R):")
+        lines.append(
+            "Zero-failure sizes: defect-reference ratings with no miss needed, n = ln(1−C)/ln(R):"
+        )
         for z in adv.zero_failure:
-            lines.append(f"  R = {100 * z.reliability:g} %, C = {100 * z.confidence:g} %: {z.ratings}   ({z.reason})")
-        lines.append("  Repeated trials of one item are not independent; count items, not ratings, to be safe.")
+            lines.append(
+                f"  R = {100 * z.reliability:g} %, C = {100 * z.confidence:g} %: {z.ratings}   ({z.reason})"
+            )
+        lines.append(
+            "  Repeated trials of one item are not independent; count items, not ratings, to be safe."
+        )
         lines.append("")
     lines.append("Model: " + adv.model)
     return "\n".join(lines) + "\n"

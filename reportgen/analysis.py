@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -161,7 +162,7 @@ class _Collector:
         return rec
 
 
-def _guard(path: str, col: _Collector, fn: Callable[[], Estimate]) -> Estimate:
+def _guard(fn: Callable[[], Estimate]) -> Estimate:
     """Call the core; a ValueError about the data becomes an undefined figure with a warning."""
     try:
         return fn()
@@ -203,7 +204,7 @@ class _Data:
     def ordinal(self) -> bool:
         return self.study.scale == "ordinal"
 
-    @property
+    @cached_property
     def units(self) -> np.ndarray:
         """(n*t, r): one row per item × trial (item-major), one column per rater."""
         return self.codes.transpose(0, 2, 1).reshape(self.n * self.t, self.r)
@@ -392,7 +393,7 @@ def _conger(d: _Data, units: np.ndarray, t: int, want: bool) -> tuple[Estimate, 
     from .stats import pairwise
 
     k, n = d.k, d.n
-    est = pairwise.conger_kappa(units, k, confidence_level=d.level)
+    est = pairwise.conger_kappa(units, k, confidence_level=d.level, rater_labels=d.raters)
     if not want or not _affordable(d, 2 + units.shape[1] * k):
         return est, None
     feats = _item_sums(pairwise.conger_kappa_features(units, k), n, t)
@@ -407,7 +408,7 @@ def _light(d: _Data, units: np.ndarray, t: int, want: bool) -> tuple[Estimate, M
     from .stats import pairwise
 
     k, n = d.k, d.n
-    est = pairwise.light_kappa(units, k, confidence_level=d.level)
+    est = pairwise.light_kappa(units, k, confidence_level=d.level, rater_labels=d.raters)
     r = units.shape[1]
     if not want or not _affordable(d, r * (r - 1) // 2 * k * k):
         return est, None
@@ -542,12 +543,12 @@ def _defect_rates(
     if n_def == 0:
         col.warn(
             _path(base, "miss_rate"),
-            "No item has the defect category as its reference: the miss rate cannot be estimated.",
+            "No rating of an item whose reference is the defect category: the miss rate cannot be estimated.",
         )
     if n_ok == 0:
         col.warn(
             _path(base, "false_alarm_rate"),
-            "Every item with a reference is a defect item: the false alarm rate cannot be estimated.",
+            "No rating of an item whose reference is a conforming category: the false alarm rate cannot be estimated.",
         )
     counts = {
         "defect_reference_ratings": n_def,
@@ -604,8 +605,6 @@ def _accuracy(d: _Data, col: _Collector, caveats: dict[str, Any]) -> dict[str, A
             counts.update(dcounts)
         if d.ordinal:
             tau = _guard(
-                _path(base, "kendall_tau_b"),
-                col,
                 lambda p=p: kendall_tau_b(p["a"], p["b"], confidence_level=d.level),
             )
             entry["kendall_tau_b"] = col.record(_path(base, "kendall_tau_b"), tau)
@@ -692,7 +691,9 @@ def _reproducibility(d: _Data, col: _Collector, caveats: dict[str, Any]) -> dict
             "chance_agreement": _num(fl.overall.extra.get("p_e")),
         }
     # pairwise Cohen's kappa between raters, trial-matched (item × trial units)
-    out["pairwise_cohen_kappa"] = _pairwise(d, col, d.units, "reproducibility.pairwise_cohen_kappa")
+    out["pairwise_cohen_kappa"] = _pairwise(
+        d, col, d.units, "reproducibility.pairwise_cohen_kappa", caveats
+    )
     if d.t >= 2:
         by_trial: dict[str, Any] = {}
         for tt in range(d.t):
@@ -784,12 +785,15 @@ def _multi_rater(
     if d.ordinal:
         path = _path(base, "kendall_w")
         out["kendall_w"] = col.record(
-            path, _guard(path, col, lambda: kendall_w(slots, confidence_level=d.level))
+            path, _guard(lambda: kendall_w(slots, confidence_level=d.level))
         )
     return out
 
 
-def _pairwise(d: _Data, col: _Collector, units: np.ndarray, base: str) -> dict[str, Any]:
+def _pairwise(
+    d: _Data, col: _Collector, units: np.ndarray, base: str, caveats: dict[str, Any]
+) -> dict[str, Any]:
+    """Cohen's kappa of every pair of raters; the pairs' chance figures go to the caveats."""
     from .stats.pairwise import pairwise_cohen
 
     try:
@@ -798,6 +802,7 @@ def _pairwise(d: _Data, col: _Collector, units: np.ndarray, base: str) -> dict[s
         col.warn(base, f"Pairwise Cohen's kappa could not be computed for these data: {exc}")
         return {}
     out: dict[str, Any] = {}
+    pairs: list[dict[str, Any]] = []
     for a, ra in enumerate(d.raters):
         row: dict[str, Any] = {}
         for b, rb in enumerate(d.raters):
@@ -809,7 +814,17 @@ def _pairwise(d: _Data, col: _Collector, units: np.ndarray, base: str) -> dict[s
                 continue
             # the matrix is symmetric: warn once per pair
             row[rb] = est.as_record() if a > b else col.record(_path(base, ra, rb), est)
+            if a < b:
+                pairs.append(
+                    {
+                        "raters": [ra, rb],
+                        "observed_agreement": _num(est.extra.get("p_o")),
+                        "chance_agreement": _num(est.extra.get("p_e")),
+                        "kappa_max": _num(est.extra.get("kappa_max")),
+                    }
+                )
         out[ra] = row
+    caveats["pairs"] = pairs
     return out
 
 
@@ -1086,29 +1101,33 @@ def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
     return info
 
 
-def _jsonable(x: Any, col: _Collector, path: str = "") -> Any:
-    if x is None or isinstance(x, (bool, str)):
+def _jsonable(x: Any, col: _Collector, path: tuple[str, ...] = ()) -> Any:
+    """Plain JSON data: numpy scalars and arrays to Python, non-finite floats to None (with a warning)."""
+    t = type(x)
+    if x is None or t is str or t is bool or t is int:
         return x
-    if isinstance(x, dict):
-        return {
-            str(key): _jsonable(v, col, f"{path}.{key}" if path else str(key))
-            for key, v in x.items()
-        }
-    if isinstance(x, (list, tuple)):
+    if t is float:
+        if math.isfinite(x):
+            return x
+        col.warn(".".join(path), "A figure was not a finite number and is shown as undefined.")
+        return None
+    if t is dict:
+        return {str(key): _jsonable(v, col, (*path, str(key))) for key, v in x.items()}
+    if t is list or t is tuple:
         return [_jsonable(v, col, path) for v in x]
     if isinstance(x, np.ndarray):
         return _jsonable(x.tolist(), col, path)
-    if isinstance(x, np.bool_):
+    if isinstance(x, (bool, np.bool_)):
         return bool(x)
     if isinstance(x, (int, np.integer)):
         return int(x)
     if isinstance(x, (float, np.floating)):
-        v = float(x)
-        if not math.isfinite(v):
-            col.warn(path, "A figure was not a finite number and is shown as undefined.")
-            return None
-        return v
-    raise TypeError(f"results hold a value JSON cannot carry at {path}: {type(x).__name__}")
+        return _jsonable(float(x), col, path)
+    if isinstance(x, str):
+        return str(x)
+    raise TypeError(
+        f"results hold a value JSON cannot carry at {'.'.join(path)}: {type(x).__name__}"
+    )
 
 
 # --------------------------------------------------------------------------------------------

@@ -77,7 +77,11 @@ def design_summary(study: Study, ratings: Ratings) -> dict[str, Any]:
 
 
 def _counts(values: np.ndarray, categories: tuple[str, ...]) -> dict[str, int]:
-    counts = np.bincount(values.astype(np.int64), minlength=len(categories)) if values.size else np.zeros(len(categories), np.int64)
+    counts = (
+        np.bincount(values.astype(np.int64), minlength=len(categories))
+        if values.size
+        else np.zeros(len(categories), np.int64)
+    )
     return {c: int(counts[k]) for k, c in enumerate(categories)}
 
 

@@ -74,7 +74,7 @@ class PlanItem:
     """One item of the item list, with its line in the file."""
 
     item: str
-    reference: str  # category code
+    reference: str | None  # category code; None: not given (studies without a reference)
     borderline: bool | None  # None: the list has no borderline column
     line: int
 
@@ -151,28 +151,44 @@ def plan_settings(
     if raw is not None:
         if not isinstance(raw, dict):
             loc = study.locate("plan")
-            problems.add(loc.path, "must be a mapping of seed, gap_days, start", line=loc.line, column=loc.column, key="plan")
+            problems.add(
+                loc.path,
+                "must be a mapping of seed, gap_days, start",
+                line=loc.line,
+                column=loc.column,
+                key="plan",
+            )
         else:
             for k, v in raw.items():
                 loc = study.locate("plan", k)
                 if k not in PLAN_KEYS:
                     problems.add(
-                        loc.path, f"unknown key {k!r}", line=loc.line, column=loc.column,
-                        key=f"plan.{k}", hint=f"known keys: {', '.join(PLAN_KEYS)}",
+                        loc.path,
+                        f"unknown key {k!r}",
+                        line=loc.line,
+                        column=loc.column,
+                        key=f"plan.{k}",
+                        hint=f"known keys: {', '.join(PLAN_KEYS)}",
                     )
                 elif k in ("seed", "gap_days"):
                     if isinstance(v, bool) or not isinstance(v, int) or v < 0:
                         problems.add(
-                            loc.path, f"must be a whole number of at least 0, got {v!r}",
-                            line=loc.line, column=loc.column, key=f"plan.{k}",
+                            loc.path,
+                            f"must be a whole number of at least 0, got {v!r}",
+                            line=loc.line,
+                            column=loc.column,
+                            key=f"plan.{k}",
                         )
                     else:
                         values[k] = v
                 elif k == "start":
                     if isinstance(v, dt.datetime) or not isinstance(v, dt.date):
                         problems.add(
-                            loc.path, f"must be a date (YYYY-MM-DD), got {v!r}",
-                            line=loc.line, column=loc.column, key="plan.start",
+                            loc.path,
+                            f"must be a date (YYYY-MM-DD), got {v!r}",
+                            line=loc.line,
+                            column=loc.column,
+                            key="plan.start",
                         )
                     else:
                         values[k] = v
@@ -189,7 +205,9 @@ def plan_settings(
     else:
         gap, gap_source = DEFAULT_GAP_DAYS, "default"
     first = start or values.get("start") or today or dt.date.today()
-    return PlanSettings(seed=the_seed, gap_days=gap, start=first, seed_source=seed_source, gap_source=gap_source)
+    return PlanSettings(
+        seed=the_seed, gap_days=gap, start=first, seed_source=seed_source, gap_source=gap_source
+    )
 
 
 # --------------------------------------------------------------------------- item list
@@ -213,7 +231,9 @@ def load_items(path: str | Path, study: Study) -> tuple[PlanItem, ...]:
     p = Path(path)
     problems = ProblemCollector()
     if not p.is_file():
-        raise InputError.single(p, "item list not found", hint="give a CSV with columns item,reference[,borderline]")
+        raise InputError.single(
+            p, "item list not found", hint="give a CSV with columns item,reference[,borderline]"
+        )
     text = _sniff_text(p)
     if not text.strip():
         raise InputError.single(p, "the item list is empty", line=1)
@@ -231,45 +251,67 @@ def load_items(path: str | Path, study: Study) -> tuple[PlanItem, ...]:
     header = [h.lower() for h in header]
     while header and header[-1] == "":
         header.pop()
-    for need in ("item", "reference"):
+    needs_reference = study.reference_path is not None or study.defect_category is not None
+    for need in ("item", "reference") if needs_reference else ("item",):
         if need not in header:
             raise InputError.single(
-                p, f"column {need!r} is missing from the header", line=head_line,
+                p,
+                f"column {need!r} is missing from the header",
+                line=head_line,
                 hint="the first row must name the columns: item,reference[,borderline]",
             )
     unknown = [h for h in header if h not in ("item", "reference", "borderline")]
     if unknown:
         raise InputError.single(
-            p, f"unknown column {unknown[0]!r}", line=head_line,
+            p,
+            f"unknown column {unknown[0]!r}",
+            line=head_line,
             hint="the columns are item, reference and (optional) borderline",
         )
-    i_item, i_ref = header.index("item"), header.index("reference")
+    i_item = header.index("item")
+    i_ref = header.index("reference") if "reference" in header else None
     i_border = header.index("borderline") if "borderline" in header else None
     codes = study.category_codes
     seen: dict[str, int] = {}
     items: list[PlanItem] = []
     for line, row in rows[1:]:
+
         def cell(i: int, row: list[str] = row) -> str:
             return row[i] if i < len(row) else ""
 
-        extra = [c for c in row[len(header):] if c]
+        extra = [c for c in row[len(header) :] if c]
         if extra:
-            problems.add(p, f"more cells than columns in the header ({len(row)} > {len(header)})", line=line)
+            problems.add(
+                p, f"more cells than columns in the header ({len(row)} > {len(header)})", line=line
+            )
             continue
-        item, ref = cell(i_item), cell(i_ref)
+        item = cell(i_item)
+        ref: str | None = cell(i_ref) if i_ref is not None else ""
         if not item:
             problems.add(p, "item is blank", line=line, key="item")
             continue
         if item in seen:
-            problems.add(p, f"item {item!r} is listed twice (first on line {seen[item]})", line=line, key="item")
+            problems.add(
+                p,
+                f"item {item!r} is listed twice (first on line {seen[item]})",
+                line=line,
+                key="item",
+            )
             continue
         seen[item] = line
-        if ref not in codes:
+        if not ref and not needs_reference:
+            ref = None  # a study without a reference: the list need not give one
+        elif ref not in codes:
             near = _nearest(ref, codes)
             problems.add(
-                p, f"reference {ref!r} is not a category of the study" if ref else "reference is blank",
-                line=line, key="reference",
-                hint=(f"did you mean {near!r}? " if near else "") + f"categories: {', '.join(codes)}",
+                p,
+                f"reference {ref!r} is not a category of the study"
+                if ref
+                else "reference is blank",
+                line=line,
+                key="reference",
+                hint=(f"did you mean {near!r}? " if near else "")
+                + f"categories: {', '.join(codes)}",
             )
             continue
         border: bool | None = None
@@ -281,7 +323,10 @@ def load_items(path: str | Path, study: Study) -> tuple[PlanItem, ...]:
                 border = False
             else:
                 problems.add(
-                    p, f"borderline must be yes or no, got {cell(i_border)!r}", line=line, key="borderline"
+                    p,
+                    f"borderline must be yes or no, got {cell(i_border)!r}",
+                    line=line,
+                    key="borderline",
                 )
                 continue
         items.append(PlanItem(item=item, reference=ref, borderline=border, line=line))
@@ -328,7 +373,9 @@ def _label_text(index: int, length: int) -> str:
     return "".join(out)
 
 
-def _draw_labels(rng: np.random.Generator, count: int, forbidden: set[str]) -> tuple[list[str], int]:
+def _draw_labels(
+    rng: np.random.Generator, count: int, forbidden: set[str]
+) -> tuple[list[str], int]:
     length = _label_length(count + len(forbidden))
     space = _label_space(length)
     labels: list[str] = []
@@ -368,7 +415,10 @@ def make_plan(study: Study, items: Sequence[PlanItem], settings: PlanSettings) -
             label_of[(i, t)] = labels[k]
             k += 1
 
-    dates = tuple(settings.start + dt.timedelta(days=settings.gap_days * (t - 1)) for t in range(1, study.trials + 1))
+    dates = tuple(
+        settings.start + dt.timedelta(days=settings.gap_days * (t - 1))
+        for t in range(1, study.trials + 1)
+    )
     seen_orders: set[tuple[int, ...]] = set()
     sheets: list[RunSheet] = []
     for t in range(1, study.trials + 1):
@@ -378,13 +428,29 @@ def make_plan(study: Study, items: Sequence[PlanItem], settings: PlanSettings) -
                 if order not in seen_orders:
                     break
             else:  # pragma: no cover - guarded by the factorial check above
-                raise InputError.single(study.path, "could not draw a different order for every run sheet")
+                raise InputError.single(
+                    study.path, "could not draw a different order for every run sheet"
+                )
             seen_orders.add(order)
             rows = tuple(
-                SheetRow(order=pos + 1, label=label_of[(i, t)], item=items[i].item) for pos, i in enumerate(order)
+                SheetRow(order=pos + 1, label=label_of[(i, t)], item=items[i].item)
+                for pos, i in enumerate(order)
             )
-            sheets.append(RunSheet(rater=rater.id, rater_name=rater.name, trial=t, date=dates[t - 1], rows=rows))
-    key = tuple(sorted(((label_of[(i, t)], items[i].item, t) for i in range(n) for t in range(1, study.trials + 1)), key=lambda r: (r[2], r[0])))
+            sheets.append(
+                RunSheet(
+                    rater=rater.id, rater_name=rater.name, trial=t, date=dates[t - 1], rows=rows
+                )
+            )
+    key = tuple(
+        sorted(
+            (
+                (label_of[(i, t)], items[i].item, t)
+                for i in range(n)
+                for t in range(1, study.trials + 1)
+            ),
+            key=lambda r: (r[2], r[0]),
+        )
+    )
     plan = Plan(
         study_id=study.id,
         study_title=study.title,
@@ -404,9 +470,12 @@ def _with_summary(plan: Plan, study: Study) -> Plan:
     from dataclasses import replace
 
     n = len(plan.items)
-    counts = {code: 0 for code, _, _ in plan.categories}
+    counts: dict[str, int] | None = {code: 0 for code, _, _ in plan.categories}
     for it in plan.items:
-        counts[it.reference] += 1
+        if it.reference is not None and counts is not None:
+            counts[it.reference] += 1
+    if not any(it.reference is not None for it in plan.items):
+        counts = None
     flags = [it.borderline for it in plan.items]
     has_flags = all(f is not None for f in flags)
     n_border = sum(1 for f in flags if f) if has_flags else None
@@ -417,7 +486,9 @@ def _with_summary(plan: Plan, study: Study) -> Plan:
         "seed_source": plan.settings.seed_source,
         "gap_days": plan.settings.gap_days,
         "gap_source": plan.settings.gap_source,
-        "trial_dates": [{"trial": t, "date": d.isoformat()} for t, d in enumerate(plan.trial_dates, 1)],
+        "trial_dates": [
+            {"trial": t, "date": d.isoformat()} for t, d in enumerate(plan.trial_dates, 1)
+        ],
         "design": {
             "items": n,
             "raters": len(study.raters),
@@ -447,7 +518,11 @@ def _with_summary(plan: Plan, study: Study) -> Plan:
         ),
         "gap": (
             f"Trials are planned {plan.settings.gap_days} day(s) apart"
-            + (" (default; common practice, no source)" if plan.settings.gap_source == "default" else "")
+            + (
+                " (default; common practice, no source)"
+                if plan.settings.gap_source == "default"
+                else ""
+            )
             + "."
         ),
     }
@@ -495,17 +570,25 @@ def summary_text(plan: Plan) -> str:
         f"Study plan for {plan.study_id} (revision {plan.revision}): {plan.study_title}",
         "",
         f"Seed: {s['seed']} ({s['seed_source']})",
-        f"Gap between trials: {s['gap_days']} day(s)" + (" (default)" if s["gap_source"] == "default" else ""),
+        f"Gap between trials: {s['gap_days']} day(s)"
+        + (" (default)" if s["gap_source"] == "default" else ""),
     ]
     lines += [f"Trial {x['trial']}: planned for {x['date']}" for x in s["trial_dates"]]
     lines += [
         "",
         f"Items: {d['items']}   Raters: {d['raters']}   Trials: {d['trials']}   "
         f"Run sheets: {d['run_sheets']}   Ratings to collect: {d['ratings']}",
-        "Items per reference category: " + ", ".join(f"{c} {n}" for c, n in d["reference_counts"].items()),
+        "Items per reference category: "
+        + (
+            ", ".join(f"{c} {n}" for c, n in d["reference_counts"].items())
+            if d["reference_counts"] is not None
+            else "not given"
+        ),
     ]
     if d["borderline_items"] is not None:
-        lines.append(f"Borderline items: {d['borderline_items']} ({100 * d['borderline_share']:.0f} % of the items)")
+        lines.append(
+            f"Borderline items: {d['borderline_items']} ({100 * d['borderline_share']:.0f} % of the items)"
+        )
     lines += [
         f"Coded labels: {s['labels']['count']}, {s['labels']['characters']} characters each, none used twice",
         "",
@@ -516,10 +599,14 @@ def summary_text(plan: Plan) -> str:
         "Files:",
         "  sheets/              run sheets for the raters (CSV, HTML, PDF)",
         "  ratings-entry.csv    data-entry file: fill in the rating column, one row per coded label",
-        "  key/key.csv          the key; keep it from the raters (see key/" + KEY_WARNING_NAME + ")",
+        "  key/key.csv          the key; keep it from the raters (see key/"
+        + KEY_WARNING_NAME
+        + ")",
         "",
-        "After the study: put the filled-in ratings-entry.csv and key/key.csv beside the study",
-        "definition and set `ratings: ratings-entry.csv` and `key: key.csv` in it.",
+        "After the trials: copy this folder into the study folder as plan/, fill in",
+        "plan/ratings-entry.csv, and set `ratings: plan/ratings-entry.csv` and",
+        "`key: plan/key/key.csv` in the study definition; the report then finds this summary",
+        "and states how order and blinding were done.",
     ]
     return "\n".join(lines) + "\n"
 
@@ -547,7 +634,9 @@ def sheet_context(plan: Plan, sheet: RunSheet, *, study: Study) -> dict[str, Any
         "trial": sheet.trial,
         "trials": study.trials,
         "date": sheet.date.isoformat(),
-        "categories": [{"code": c, "label": lab, "description": desc} for c, lab, desc in plan.categories],
+        "categories": [
+            {"code": c, "label": lab, "description": desc} for c, lab, desc in plan.categories
+        ],
         "rows": [{"order": r.order, "label": r.label} for r in sheet.rows],
         "instructions": list(_INSTRUCTIONS),
         "paper": study.paper,
@@ -616,10 +705,14 @@ def render_sheet_pdf(html: str, *, when: dt.date) -> bytes:
     except ModuleNotFoundError:  # pragma: no cover - render.pdf absent as well
         fetcher = None
     try:
-        doc = weasyprint.HTML(string=html, base_url=root.as_uri() + "/", url_fetcher=fetcher).render()
+        doc = weasyprint.HTML(
+            string=html, base_url=root.as_uri() + "/", url_fetcher=fetcher
+        ).render()
         return bytes(doc.write_pdf())
     except Exception as exc:  # noqa: BLE001 - any render failure becomes a RenderError
-        raise RenderError(f"run sheet PDF could not be rendered: {type(exc).__name__}: {exc}") from exc
+        raise RenderError(
+            f"run sheet PDF could not be rendered: {type(exc).__name__}: {exc}"
+        ) from exc
 
 
 def plan_folder(study: Study, output_dir: str | Path) -> Path:
@@ -642,7 +735,9 @@ def write_plan(
     """
     final = plan_folder(study, output_dir)
     if final.exists():
-        raise ExistsError(f"{final}: a plan already exists; it is kept. Remove it or choose another --output folder.")
+        raise ExistsError(
+            f"{final}: a plan already exists; it is kept. Remove it or choose another --output folder."
+        )
     final.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=".plan-", dir=final.parent))
     try:
@@ -661,13 +756,20 @@ def write_plan(
         _put(tmp / "key" / KEY_WARNING_NAME, KEY_WARNING.encode("utf-8"))
         summary = dict(plan.summary)
         summary["files"] = {
-            "run_sheets": [f"sheets/{s.stem}.{ext}" for s in plan.sheets for ext in (("csv", "html", "pdf") if pdf else ("csv", "html"))],
+            "run_sheets": [
+                f"sheets/{s.stem}.{ext}"
+                for s in plan.sheets
+                for ext in (("csv", "html", "pdf") if pdf else ("csv", "html"))
+            ],
             "entry": "ratings-entry.csv",
             "key": "key/key.csv",
         }
         if advice is not None:
             summary["advice"] = advice
-        _put(tmp / "plan.json", (json.dumps(summary, indent=2, allow_nan=False) + "\n").encode("utf-8"))
+        _put(
+            tmp / "plan.json",
+            (json.dumps(summary, indent=2, allow_nan=False) + "\n").encode("utf-8"),
+        )
         _put(tmp / "plan.txt", summary_text(plan).encode("utf-8"))
         os.chmod(tmp, 0o755)
         if final.exists():
@@ -696,7 +798,9 @@ def read_plan_summary(folder: str | Path) -> dict[str, Any] | None:
     return data if isinstance(data, dict) and data.get("schema") == PLAN_SCHEMA else None
 
 
-def find_plan_summary(study: Study, *, output_dir: str | Path | None = None) -> dict[str, Any] | None:
+def find_plan_summary(
+    study: Study, *, output_dir: str | Path | None = None
+) -> dict[str, Any] | None:
     """The plan summary of a study: ``plan.json`` beside the study definition, in its ``plan/``
     folder, or in ``<output_dir>/<study-id>/plan``; None when no plan is found."""
     places = [study.path.parent, study.path.parent / "plan"]

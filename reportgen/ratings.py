@@ -44,6 +44,9 @@ from .yamlio import display_path
 MAX_TABLE_BYTES = 500_000_000
 #: largest total uncompressed size of an .xlsx archive
 MAX_XLSX_UNZIPPED = 200_000_000
+#: below these sizes the stdlib reader and dict-based factorising are used (no pandas import)
+SMALL_BYTES = 2_000_000
+SMALL_ROWS = 50_000
 #: problems of one kind listed one by one before the rest are summarised
 PER_KIND = 10
 DELIMITERS = (",", ";", "\t")
@@ -118,28 +121,37 @@ class Table:
         line = self.header_line if row is None else int(self.lines[row])
         return f"cell {self.columns[col].letter}{line}: "
 
-    def problem(self, row: int | None, col: int | None, message: str, hint: str | None = None) -> Problem:
+    def problem(
+        self, row: int | None, col: int | None, message: str, hint: str | None = None
+    ) -> Problem:
         return Problem(self.location(row, col), self.cell(row, col) + message, hint)
 
 
 def _factorize(values: Any) -> tuple[np.ndarray, list[str]]:
     """Codes and trimmed distinct texts, in order of first appearance."""
-    import pandas as pd
+    if len(values) > SMALL_ROWS:
+        import pandas as pd
 
-    codes, uniques = pd.factorize(values)
-    codes = np.asarray(codes, dtype=np.int64)
-    raw = [str(u) for u in uniques]
+        codes, uniques = pd.factorize(values)
+        codes = np.asarray(codes, dtype=np.int64)
+        raw = [str(u) for u in uniques]
+    else:  # small tables: skip importing pandas
+        index: dict[str, int] = {}
+        codes = np.fromiter(
+            (index.setdefault(v, len(index)) for v in values), dtype=np.int64, count=len(values)
+        )
+        raw = list(index)
     stripped = [u.strip() for u in raw]
     if stripped == raw and len(set(stripped)) == len(stripped):
         return codes, raw
-    index: dict[str, int] = {}
+    merged: dict[str, int] = {}
     remap = np.empty(len(stripped), dtype=np.int64)
     out: list[str] = []
     for j, s in enumerate(stripped):
-        if s not in index:
-            index[s] = len(out)
+        if s not in merged:
+            merged[s] = len(out)
             out.append(s)
-        remap[j] = index[s]
+        remap[j] = merged[s]
     return (remap[codes] if len(codes) else codes), out
 
 
@@ -156,7 +168,9 @@ def _decode(raw: bytes, shown: str) -> tuple[str, str, list[str]]:
     except UnicodeDecodeError as exc:
         if enc != "utf-8":
             line = raw.count(b"\n", 0, exc.start) + 1
-            raise InputError.single(shown, f"cannot decode as {enc}: {exc.reason}", line=line) from None
+            raise InputError.single(
+                shown, f"cannot decode as {enc}: {exc.reason}", line=line
+            ) from None
         first_bad = raw.count(b"\n", 0, exc.start) + 1
     try:
         text = raw.decode("cp1252")
@@ -168,11 +182,15 @@ def _decode(raw: bytes, shown: str) -> tuple[str, str, list[str]]:
             line=line,
             hint="save the file as CSV UTF-8",
         ) from None
-    note = f"{shown} is not UTF-8 (first odd byte on line {first_bad}); read as Windows-1252 (cp1252)"
+    note = (
+        f"{shown} is not UTF-8 (first odd byte on line {first_bad}); read as Windows-1252 (cp1252)"
+    )
     return text, "cp1252", [note]
 
 
-def read_table(path: str | os.PathLike[str], *, sheet: str | None = None, what: str = "ratings") -> Table:
+def read_table(
+    path: str | os.PathLike[str], *, sheet: str | None = None, what: str = "ratings"
+) -> Table:
     """Read a CSV (comma, semicolon or tab) or .xlsx table; blank rows dropped, cells trimmed.
 
     Raises :class:`InputError` for files that cannot be read as a table: missing or empty file,
@@ -186,15 +204,18 @@ def read_table(path: str | os.PathLike[str], *, sheet: str | None = None, what: 
     except FileNotFoundError:
         raise InputError.single(shown, f"{what} file not found") from None
     if size > MAX_TABLE_BYTES:
-        raise InputError.single(shown, f"{what} file is {size:,} bytes; the limit is {MAX_TABLE_BYTES:,}")
+        raise InputError.single(
+            shown, f"{what} file is {size:,} bytes; the limit is {MAX_TABLE_BYTES:,}"
+        )
     if p.suffix.lower() == ".xlsx":
         return _read_xlsx(p, shown, sheet, what)
     raw = p.read_bytes()
     digest = hashlib.sha256(raw).hexdigest()
     text, encoding, notes = _decode(raw, shown)
-    del raw
     if not text.strip().strip("\ufeff"):
-        raise InputError.single(shown, f"the {what} file is empty", line=1, hint="the first line must name the columns")
+        raise InputError.single(
+            shown, f"the {what} file is empty", line=1, hint="the first line must name the columns"
+        )
     # skip blank lines and an Excel "sep=;" line before the header
     pos, line_no, delimiter = 0, 1, None
     while True:
@@ -214,8 +235,13 @@ def read_table(path: str | os.PathLike[str], *, sheet: str | None = None, what: 
         counts = {d: header_text.count(d) for d in DELIMITERS}
         delimiter = max(DELIMITERS, key=lambda d: counts[d]) if any(counts.values()) else ","
     body = text[pos:]
-    del text
-    parsed = _parse_fast(body, delimiter) if '"' not in body else None
+    parsed = None
+    if size > SMALL_BYTES and '"' not in body:
+        data = None
+        if encoding in ("utf-8", "utf-8-sig"):  # the file's own bytes, without re-encoding
+            data = raw[len(text[:pos].encode("utf-8")) + (3 if encoding == "utf-8-sig" else 0) :]
+        parsed = _parse_fast(body, delimiter, data)
+    del text, raw
     if parsed is None:
         header, columns_raw, lines = _parse_stdlib(body, delimiter, shown, line_no)
     else:
@@ -227,37 +253,50 @@ def read_table(path: str | os.PathLike[str], *, sheet: str | None = None, what: 
     return table
 
 
-def _parse_fast(body: str, delimiter: str) -> tuple[list[str], list[Any], np.ndarray] | None:
-    """pandas C reader for regular files; None when the file needs the careful reader."""
+def _parse_fast(
+    body: str, delimiter: str, data: bytes | None = None
+) -> tuple[list[str], list[Any], np.ndarray] | None:
+    """pandas C reader for regular files; None when the file needs the careful reader.
+
+    ``data`` is ``body`` encoded as UTF-8 when the caller has it already.  Regular means: no
+    bare carriage returns and the same number of delimiters on every non-empty line, so that
+    record *n* is physical line *n* and no row is short or long.
+    """
     import pandas as pd
 
-    data = body.encode("utf-8")
+    if data is None:
+        data = body.encode("utf-8")
+    n_cr = data.count(b"\r")
+    if n_cr and n_cr != data.count(b"\r\n"):
+        return None  # bare carriage returns: old line ends or odd content
     arr = np.frombuffer(data, dtype=np.uint8)
     nl = np.flatnonzero(arr == 10)
-    n_cr = int(np.count_nonzero(arr == 13))
-    if n_cr:
-        crlf = int(np.count_nonzero(arr[nl[nl > 0] - 1] == 13)) if len(nl) else 0
-        if crlf != n_cr:
-            return None  # bare carriage returns: old line ends or odd content
-    ends = nl if (len(data) and data[-1:] == b"\n") else np.append(nl, len(data))
+    ends = nl if data.endswith(b"\n") else np.append(nl, len(data))
     n_lines = len(ends)
     starts = np.concatenate(([0], nl[: n_lines - 1] + 1)) if n_lines else np.zeros(0, np.int64)
     lengths = ends - starts
     if n_cr:
-        has_cr = np.zeros(n_lines, dtype=bool)
-        nz = ends > starts
-        has_cr[nz] = arr[ends[nz] - 1] == 13
-        lengths = lengths - has_cr
+        one = np.flatnonzero(lengths == 1)
+        lengths[one[arr[starts[one]] == 13]] = 0  # a line holding only "\r" is blank
     dpos = np.flatnonzero(arr == ord(delimiter))
     per_line = np.diff(np.searchsorted(dpos, ends), prepend=0)  # delimiters on each line
     expected = per_line[0]
     regular = (per_line == expected) | (lengths == 0)
     if not regular.all():
         return None
+    header = body[: body.find("\n")] if "\n" in body else body
+    header = header.rstrip("\r")
+    if n_lines == 1:
+        return (
+            header.split(delimiter),
+            [np.zeros(0, dtype=object) for _ in range(expected + 1)],
+            np.zeros(0, np.int64),
+        )
     frame = pd.read_csv(
         io.BytesIO(data),
         sep=delimiter,
         header=None,
+        skiprows=1,
         dtype=str,
         keep_default_na=False,
         na_filter=False,
@@ -265,15 +304,17 @@ def _parse_fast(body: str, delimiter: str) -> tuple[list[str], list[Any], np.nda
         engine="c",
         encoding="utf-8",
         quoting=csv.QUOTE_NONE,
+        low_memory=False,
     )
-    if len(frame) != n_lines or frame.shape[1] != expected + 1:
+    if len(frame) != n_lines - 1 or frame.shape[1] != expected + 1:
         return None
-    header = [str(v) for v in frame.iloc[0].tolist()]
-    cols = [frame.iloc[1:, j].to_numpy(dtype=object) for j in range(frame.shape[1])]
-    return header, cols, np.arange(1, n_lines, dtype=np.int64)
+    cols = [frame[j].to_numpy(dtype=object, copy=False) for j in range(frame.shape[1])]
+    return header.split(delimiter), cols, np.arange(1, n_lines, dtype=np.int64)
 
 
-def _parse_stdlib(body: str, delimiter: str, shown: str, first_line: int) -> tuple[list[str], list[Any], np.ndarray]:
+def _parse_stdlib(
+    body: str, delimiter: str, shown: str, first_line: int
+) -> tuple[list[str], list[Any], np.ndarray]:
     reader = csv.reader(io.StringIO(body, newline=""), delimiter=delimiter, strict=True)
     pc = ProblemCollector()
     header: list[str] | None = None
@@ -297,8 +338,22 @@ def _parse_stdlib(body: str, delimiter: str, shown: str, first_line: int) -> tup
             if len(row) != ncols:
                 if len(row) > ncols and not any(f.strip() for f in row[ncols:]):
                     row = row[:ncols]
+                elif ncols < len(row) <= len(header):
+                    j = next(k for k in range(ncols, len(row)) if row[k].strip())
+                    pc.add(
+                        shown,
+                        f"a value ({row[j].strip()!r}) under a column without a name (column {j + 1})",
+                        line=start + first_line - 1,
+                        hint="name the column in the header or delete the value",
+                    )
+                    continue
                 else:
-                    pc.add(shown, f"expected {ncols} fields, found {len(row)}", line=start + first_line - 1, hint=f"the header has {ncols} columns; check the separators on this line")
+                    pc.add(
+                        shown,
+                        f"expected {ncols} fields, found {len(row)}",
+                        line=start + first_line - 1,
+                        hint=f"the header has {ncols} columns; check the separators on this line",
+                    )
                     continue
             rows.append(row)
             lines.append(start - 1)
@@ -339,13 +394,27 @@ def _build_table(
     seen: dict[str, int] = {}
     for j, name in enumerate(names[:keep]):
         if not name:
-            pc.add(shown, f"{where(j)}column {j + 1} has no name", line=header_line, hint="name every column in the header line, or delete the empty column")
+            pc.add(
+                shown,
+                f"{where(j)}column {j + 1} has no name",
+                line=header_line,
+                hint="name every column in the header line, or delete the empty column",
+            )
         elif name.lower() in seen:
-            pc.add(shown, f"{where(j)}duplicate column {name!r} (columns {seen[name.lower()] + 1} and {j + 1})", line=header_line, key=name)
+            pc.add(
+                shown,
+                f"{where(j)}duplicate column {name!r} (columns {seen[name.lower()] + 1} and {j + 1})",
+                line=header_line,
+                key=name,
+            )
         else:
             seen[name.lower()] = j
     columns = [
-        Column(names[j] if j < len(names) else "", *_factorize(columns_raw[j]), letter=letters[j] if letters else None)
+        Column(
+            names[j] if j < len(names) else "",
+            *_factorize(columns_raw[j]),
+            letter=letters[j] if letters else None,
+        )
         for j in range(len(columns_raw))
     ]
     # blank records: every cell empty after trimming
@@ -366,9 +435,23 @@ def _build_table(
         if len(stray):
             row = int(stray[0])
             ref = f"cell {letters[j]}{int(lines[row])}: " if letters else ""
-            pc.add(shown, f"{ref}a value ({c.uniques[c.codes[row]]!r}) under a column without a name (column {j + 1})", line=int(lines[row]), hint="name the column in the header or delete the value")
+            pc.add(
+                shown,
+                f"{ref}a value ({c.uniques[c.codes[row]]!r}) under a column without a name (column {j + 1})",
+                line=int(lines[row]),
+                hint="name the column in the header or delete the value",
+            )
     pc.raise_if_any()
-    return Table(path=p, shown=shown, columns=columns[:keep], lines=lines, header_line=header_line, kind=kind, sha256="", size=0)
+    return Table(
+        path=p,
+        shown=shown,
+        columns=columns[:keep],
+        lines=lines,
+        header_line=header_line,
+        kind=kind,
+        sha256="",
+        size=0,
+    )
 
 
 def _cell_text(v: Any) -> str:
@@ -393,12 +476,20 @@ def _read_xlsx(p: Path, shown: str, sheet: str | None, what: str) -> Table:
     except zipfile.BadZipFile:
         raise InputError.single(shown, "not a valid .xlsx workbook (not a zip archive)") from None
     if unzipped > MAX_XLSX_UNZIPPED:
-        raise InputError.single(shown, f"the workbook unpacks to {unzipped:,} bytes; the limit is {MAX_XLSX_UNZIPPED:,}", hint="save the ratings as CSV")
+        raise InputError.single(
+            shown,
+            f"the workbook unpacks to {unzipped:,} bytes; the limit is {MAX_XLSX_UNZIPPED:,}",
+            hint="save the ratings as CSV",
+        )
     import openpyxl
     from openpyxl.utils import get_column_letter
 
     if not getattr(openpyxl, "DEFUSEDXML", False):
-        raise InputError.single(shown, "refusing to open .xlsx files without the defusedxml package", hint="pip install defusedxml")
+        raise InputError.single(
+            shown,
+            "refusing to open .xlsx files without the defusedxml package",
+            hint="pip install defusedxml",
+        )
     raw = p.read_bytes()
     try:
         wb = openpyxl.load_workbook(io.BytesIO(raw), read_only=True, data_only=True)
@@ -436,12 +527,28 @@ def _read_xlsx(p: Path, shown: str, sheet: str | None, what: str) -> Table:
     finally:
         wb.close()
     if header is None:
-        raise InputError.single(shown, f"the {what} sheet {title!r} is empty", hint="the first row must name the columns")
+        raise InputError.single(
+            shown,
+            f"the {what} sheet {title!r} is empty",
+            hint="the first row must name the columns",
+        )
     width = max([len(header)] + [len(r) for r in rows])
     header = header + [""] * (width - len(header))
-    cols = [np.asarray([r[j] if j < len(r) else "" for r in rows], dtype=object) for j in range(width)]
+    cols = [
+        np.asarray([r[j] if j < len(r) else "" for r in rows], dtype=object) for j in range(width)
+    ]
     letters = [get_column_letter(j + 1) for j in range(width)]
-    table = _build_table(p, shown, header, cols, np.asarray(numbers, dtype=np.int64), header_line, "xlsx", letters, what)
+    table = _build_table(
+        p,
+        shown,
+        header,
+        cols,
+        np.asarray(numbers, dtype=np.int64),
+        header_line,
+        "xlsx",
+        letters,
+        what,
+    )
     table.sha256, table.size, table.sheet = hashlib.sha256(raw).hexdigest(), len(raw), title
     return table
 
@@ -473,7 +580,14 @@ class _Problems:
         for kind, n in self.kinds.items():
             if n > PER_KIND:
                 loc = self.last[kind]
-                self.collector.extend([Problem(Location(loc.path, None, None, loc.key), f"{n - PER_KIND} more {kind} not listed")])
+                self.collector.extend(
+                    [
+                        Problem(
+                            Location(loc.path, None, None, loc.key),
+                            f"{n - PER_KIND} more {kind} not listed",
+                        )
+                    ]
+                )
         self.collector.raise_if_any()
 
     def __bool__(self) -> bool:
@@ -519,12 +633,17 @@ def _map_column(
     if not blank_ok:
         blanks = np.flatnonzero(mapped == -2)
         for row in blanks[:PER_KIND]:
-            problems.add(blank_kind or f"blank {c.name} cells", table.problem(int(row), col, blank_message, blank_hint))
+            problems.add(
+                blank_kind or f"blank {c.name} cells",
+                table.problem(int(row), col, blank_message, blank_hint),
+            )
         problems.count(blank_kind or f"blank {c.name} cells", len(blanks) - PER_KIND)
     return mapped
 
 
-def _code_lookup(codes: Sequence[str]) -> tuple[Callable[[str], int], Callable[[str], tuple[str, str | None]]]:
+def _code_lookup(
+    codes: Sequence[str],
+) -> tuple[Callable[[str], int], Callable[[str], tuple[str, str | None]]]:
     index = {c: i for i, c in enumerate(codes)}
 
     def lookup(u: str) -> int:
@@ -532,7 +651,11 @@ def _code_lookup(codes: Sequence[str]) -> tuple[Callable[[str], int], Callable[[
 
     def describe(u: str) -> tuple[str, str | None]:
         s = suggest(u, list(codes))
-        hint = f"did you mean {s!r}? declared codes: {', '.join(codes)}" if s else f"declared codes: {', '.join(codes)}"
+        hint = (
+            f"did you mean {s!r}? declared codes: {', '.join(codes)}"
+            if s
+            else f"declared codes: {', '.join(codes)}"
+        )
         return f"unknown category {u!r}", hint
 
     return lookup, describe
@@ -569,7 +692,9 @@ def load_ratings(study: Study) -> Ratings:
     problems = _Problems()
     notes = list(table.notes)
     if table.n_rows == 0:
-        raise InputError([table.problem(None, None, "the ratings file has a header but no ratings")])
+        raise InputError(
+            [table.problem(None, None, "the ratings file has a header but no ratings")]
+        )
     key = _load_key(study, study.key_path, problems) if study.key_path is not None else None
     layout = _detect_layout(table, study, key is not None)
     if layout == "long":
@@ -581,10 +706,10 @@ def load_ratings(study: Study) -> Ratings:
     # duplicates: the same item, rater and trial twice
     ok_cell = (recs.item >= 0) & (recs.rater >= 0) & (recs.trial >= 0)
     cell_key = np.where(ok_cell, (recs.item * n_raters + recs.rater) * n_trials + recs.trial, -1)
-    if ok_cell.any() and _has_duplicates(cell_key[ok_cell], len(recs.item_names) * n_raters * n_trials):
-        import pandas as pd
-
-        dup_rows = np.flatnonzero(pd.Series(cell_key).duplicated(keep="first").to_numpy() & ok_cell)
+    if ok_cell.any() and _has_duplicates(
+        cell_key[ok_cell], len(recs.item_names) * n_raters * n_trials
+    ):
+        dup_rows = _later_repeats(cell_key, ok_cell)
         for i in dup_rows[:PER_KIND]:
             first = int(np.flatnonzero(cell_key == cell_key[i])[0])
             item = recs.item_names[recs.item[i]]
@@ -596,7 +721,15 @@ def load_ratings(study: Study) -> Ratings:
                 msg = f"label {label!r} used twice by rater {rater} ({what}); also on line {first_line}"
             else:
                 msg = f"second rating for {what}; first on line {first_line}"
-            problems.add("duplicate ratings", table.problem(int(recs.row[i]), int(recs.col[i]), msg, "keep one rating per item, rater and trial"))
+            problems.add(
+                "duplicate ratings",
+                table.problem(
+                    int(recs.row[i]),
+                    int(recs.col[i]),
+                    msg,
+                    "keep one rating per item, rater and trial",
+                ),
+            )
         problems.count("duplicate ratings", len(dup_rows) - PER_KIND)
 
     n_items = len(recs.item_names)
@@ -627,11 +760,20 @@ def load_ratings(study: Study) -> Ratings:
     reference = None
     if ref_col is not None and study.reference_path is not None:
         loc = study.locate("reference")
-        problems.add("reference conflicts", Problem(loc, f"the reference is given twice: in the {table.columns[ref_col].name!r} column of {table.shown} and in {display_path(study.reference_path)}", "keep one of the two"))
+        problems.add(
+            "reference conflicts",
+            Problem(
+                loc,
+                f"the reference is given twice: in the {table.columns[ref_col].name!r} column of {table.shown} and in {display_path(study.reference_path)}",
+                "keep one of the two",
+            ),
+        )
     elif ref_col is not None:
         reference = _reference_from_column(table, ref_col, recs, study, problems)
     elif study.reference_path is not None:
-        reference, ref_table = _reference_from_file(study, study.reference_path, recs.item_names, problems)
+        reference, ref_table = _reference_from_file(
+            study, study.reference_path, recs.item_names, problems
+        )
         if ref_table is not None:
             sources.append(_source(ref_table, "reference", None))
             notes.extend(ref_table.notes)
@@ -706,11 +848,9 @@ def _detect_layout(table: Table, study: Study, keyed: bool) -> str:
     return "long"
 
 
-def _item_column_name(keyed: bool) -> tuple[str, ...]:
-    return ("item", "label") if keyed else ("item",)
-
-
-def _long_records(table: Table, study: Study, problems: _Problems, notes: list[str], key: _Key | None) -> tuple[_Records, int | None]:
+def _long_records(
+    table: Table, study: Study, problems: _Problems, notes: list[str], key: _Key | None
+) -> tuple[_Records, int | None]:
     wanted = {"item": None, "rater": None, "trial": None, "rating": None, "reference": None}
     known = [*wanted, *(("label",) if key is not None else ())]
     cols: dict[str, int] = {}
@@ -724,14 +864,21 @@ def _long_records(table: Table, study: Study, problems: _Problems, notes: list[s
             continue
         s = suggest(c.name, known)
         if s is not None and s.lower() != low:
-            problems.add("header problems", table.problem(None, j, f"unknown column {c.name!r}", f"did you mean {s!r}?"))
+            problems.add(
+                "header problems",
+                table.problem(None, j, f"unknown column {c.name!r}", f"did you mean {s!r}?"),
+            )
             suggested.add(s)
         elif s is None:
             notes.append(f"{table.shown}: column {c.name!r} ignored")
     required = ["item", "rater", "rating"] + (["trial"] if study.trials > 1 and key is None else [])
     for name in required:
         if name not in cols and name not in suggested:
-            hint = "trial may be left out only when the study has trials: 1" if name == "trial" else "long layout header: item,rater,trial,rating"
+            hint = (
+                "trial may be left out only when the study has trials: 1"
+                if name == "trial"
+                else "long layout header: item,rater,trial,rating"
+            )
             problems.add("header problems", table.problem(None, None, f"no {name!r} column", hint))
     if any(n not in cols for n in required):
         problems.raise_if_any()
@@ -745,9 +892,19 @@ def _long_records(table: Table, study: Study, problems: _Problems, notes: list[s
 
     def describe_rater(u: str) -> tuple[str, str | None]:
         s = suggest(u, rids)
-        return f"undeclared rater {u!r}", (f"did you mean {s!r}? " if s else "") + f"declared raters: {', '.join(rids)}"
+        return f"undeclared rater {u!r}", (
+            f"did you mean {s!r}? " if s else ""
+        ) + f"declared raters: {', '.join(rids)}"
 
-    rater = _map_column(table, cols["rater"], lambda u: rindex.get(u, -1), problems, describe=describe_rater, kind="undeclared raters", blank_message="blank rater cell")
+    rater = _map_column(
+        table,
+        cols["rater"],
+        lambda u: rindex.get(u, -1),
+        problems,
+        describe=describe_rater,
+        kind="undeclared raters",
+        blank_message="blank rater cell",
+    )
     # trials
     trial = _trial_column(table, cols.get("trial"), study, problems, n)
     # ratings
@@ -761,21 +918,36 @@ def _long_records(table: Table, study: Study, problems: _Problems, notes: list[s
         kind="unknown categories",
         blank_kind="blank rating cells",
         blank_message="blank rating cell",
-        blank_hint="every rating is required (missing: refuse)" if study.missing == "refuse" else None,
+        blank_hint="every rating is required (missing: refuse)"
+        if study.missing == "refuse"
+        else None,
         blank_ok=study.missing == "allow",
     )
     item_col = table.columns[cols["item"]]
     label = None
     if key is not None:
-        item, trial, label, names = _decode_labels(table, cols["item"], trial, cols.get("trial"), key, problems)
+        item, trial, label, names = _decode_labels(
+            table, cols["item"], trial, cols.get("trial"), key, problems
+        )
     else:
         item, names = _items(table, cols["item"], problems)
         del item_col
-    recs = _Records(item=item, rater=rater, trial=trial, rating=rating, row=row, col=np.full(n, rating_col, dtype=np.int64), item_names=names, label=label)
+    recs = _Records(
+        item=item,
+        rater=rater,
+        trial=trial,
+        rating=rating,
+        row=row,
+        col=np.full(n, rating_col, dtype=np.int64),
+        item_names=names,
+        label=label,
+    )
     return recs, cols.get("reference")
 
 
-def _trial_column(table: Table, col: int | None, study: Study, problems: _Problems, n: int) -> np.ndarray:
+def _trial_column(
+    table: Table, col: int | None, study: Study, problems: _Problems, n: int
+) -> np.ndarray:
     if col is None:
         return np.zeros(n, dtype=np.int64)
     T = study.trials
@@ -787,10 +959,21 @@ def _trial_column(table: Table, col: int | None, study: Study, problems: _Proble
 
     def describe(u: str) -> tuple[str, str | None]:
         if u.isascii() and u.isdigit():
-            return f"trial {u} is out of range: the study has {T} trial(s)", f"trials are numbered 1 to {T}"
+            return (
+                f"trial {u} is out of range: the study has {T} trial(s)",
+                f"trials are numbered 1 to {T}",
+            )
         return f"trial must be a whole number from 1 to {T}, got {u!r}", None
 
-    return _map_column(table, col, lookup, problems, describe=describe, kind="bad trial numbers", blank_message="blank trial cell")
+    return _map_column(
+        table,
+        col,
+        lookup,
+        problems,
+        describe=describe,
+        kind="bad trial numbers",
+        blank_message="blank trial cell",
+    )
 
 
 def _items(table: Table, col: int, problems: _Problems) -> tuple[np.ndarray, list[str]]:
@@ -808,12 +991,32 @@ def _items(table: Table, col: int, problems: _Problems) -> tuple[np.ndarray, lis
     return codes, names
 
 
-def _wide_records(table: Table, study: Study, problems: _Problems, notes: list[str], key: _Key | None) -> tuple[_Records, int | None]:
+def _wide_records(
+    table: Table, study: Study, problems: _Problems, notes: list[str], key: _Key | None
+) -> tuple[_Records, int | None]:
+    if key is not None:
+        raise InputError(
+            [
+                table.problem(
+                    None,
+                    None,
+                    "coded labels need the long layout",
+                    "header: item,rater,rating (the key gives each label's trial)",
+                )
+            ]
+        )
     wide = _wide_names(study)
-    first = table.columns[0].name.lower()
-    if first not in _item_column_name(key is not None):
+    if table.columns[0].name.lower() != "item":
         s = suggest(table.columns[0].name, ["item"])
-        problems.add("header problems", table.problem(None, 0, f"the first column of a wide ratings file must be 'item', found {table.columns[0].name!r}", f"did you mean {s!r}?" if s else None))
+        problems.add(
+            "header problems",
+            table.problem(
+                None,
+                0,
+                f"the first column of a wide ratings file must be 'item', found {table.columns[0].name!r}",
+                f"did you mean {s!r}?" if s else None,
+            ),
+        )
     ref_col = None
     rater_cols: list[tuple[int, int, int]] = []
     taken: dict[tuple[int, int], int] = {}
@@ -824,25 +1027,50 @@ def _wide_records(table: Table, study: Study, problems: _Problems, notes: list[s
         if c.name in wide:
             rt = wide[c.name]
             if rt in taken:
-                problems.add("header problems", table.problem(None, j, f"column {c.name!r} repeats rater {study.raters[rt[0]].id} trial {rt[1] + 1} (column {taken[rt] + 1})"))
+                problems.add(
+                    "header problems",
+                    table.problem(
+                        None,
+                        j,
+                        f"column {c.name!r} repeats rater {study.raters[rt[0]].id} trial {rt[1] + 1} (column {taken[rt] + 1})",
+                    ),
+                )
                 continue
             taken[rt] = j
             rater_cols.append((j, *rt))
             continue
         s = suggest(c.name, [*wide, "reference"])
         hint = f"did you mean {s!r}? " if s else ""
-        problems.add("header problems", table.problem(None, j, f"unknown column {c.name!r}", hint + "wide layout columns are <rater>/<trial>, e.g. " + ", ".join(list(wide)[:3])))
+        problems.add(
+            "header problems",
+            table.problem(
+                None,
+                j,
+                f"unknown column {c.name!r}",
+                hint + "wide layout columns are <rater>/<trial>, e.g. " + ", ".join(list(wide)[:3]),
+            ),
+        )
     for r, rater in enumerate(study.raters):
         for t in range(study.trials):
             if (r, t) not in taken:
                 msg = f"no column for rater {rater.id}, trial {t + 1} (expected {rater.id}/{t + 1})"
                 if study.missing == "refuse":
-                    problems.add("header problems", table.problem(None, None, msg, "with missing: allow, absent columns count as absent ratings"))
+                    problems.add(
+                        "header problems",
+                        table.problem(
+                            None,
+                            None,
+                            msg,
+                            "with missing: allow, absent columns count as absent ratings",
+                        ),
+                    )
                 else:
                     notes.append(f"{table.shown}: {msg}")
     problems.raise_if_any()
     if not rater_cols:
-        raise InputError([table.problem(None, None, "no rater columns found", "wide layout: item,R1/1,R1/2,…")])
+        raise InputError(
+            [table.problem(None, None, "no rater columns found", "wide layout: item,R1/1,R1/2,…")]
+        )
     n = table.n_rows
     m = len(rater_cols)
     lookup, describe = _code_lookup(study.category_codes)
@@ -860,20 +1088,22 @@ def _wide_records(table: Table, study: Study, problems: _Problems, notes: list[s
     ]
     rating = np.concatenate(mapped) if mapped else np.zeros(0, np.int64)
     trial_rec = np.repeat(np.asarray([t for _, _, t in rater_cols], dtype=np.int64), n)
-    label = None
-    if key is not None:
-        # each row is one label; the trial comes from the key, so it is per row, not per column
-        item_row, trial_row, label_row, names = _decode_labels(table, 0, np.zeros(n, np.int64), None, key, problems)
-        item_rec = np.tile(item_row, m)
-        trial_rec = np.tile(trial_row, m)
-        label = np.tile(label_row, m)
-    else:
-        item_row, names = _items(table, 0, problems)
-        item_rec = np.tile(item_row, m)
-        dup_item = _duplicate_rows(item_row)
-        for r in dup_item[:PER_KIND]:
-            first = int(np.flatnonzero(item_row == item_row[r])[0])
-            problems.add("repeated items", table.problem(int(r), 0, f"item {names[item_row[r]]!r} has a second row; first on line {int(table.lines[first])}", "a wide file has one row per item"))
+    item_row, names = _items(table, 0, problems)
+    repeated = _duplicate_rows(item_row)
+    for r in repeated[:PER_KIND]:
+        first = int(np.flatnonzero(item_row == item_row[r])[0])
+        problems.add(
+            "repeated items",
+            table.problem(
+                int(r),
+                0,
+                f"item {names[item_row[r]]!r} has a second row; first on line {int(table.lines[first])}",
+                "a wide file has one row per item",
+            ),
+        )
+    problems.count("repeated items", len(repeated) - PER_KIND)
+    item_row[repeated] = -2  # reported once here, not again per rating cell
+    item_rec = np.tile(item_row, m)
     recs = _Records(
         item=item_rec,
         rater=np.repeat(np.asarray([r for _, r, _ in rater_cols], dtype=np.int64), n),
@@ -882,22 +1112,35 @@ def _wide_records(table: Table, study: Study, problems: _Problems, notes: list[s
         row=np.tile(np.arange(n, dtype=np.int64), m),
         col=np.repeat(np.asarray([j for j, _, _ in rater_cols], dtype=np.int64), n),
         item_names=names,
-        label=label,
     )
     if study.missing == "refuse":
         blank = recs.rating == -2
         for i in np.flatnonzero(blank)[:PER_KIND]:
-            problems.add("blank rating cells", table.problem(int(recs.row[i]), int(recs.col[i]), "blank rating cell", "every rating is required (missing: refuse)"))
+            problems.add(
+                "blank rating cells",
+                table.problem(
+                    int(recs.row[i]),
+                    int(recs.col[i]),
+                    "blank rating cell",
+                    "every rating is required (missing: refuse)",
+                ),
+            )
         problems.count("blank rating cells", int(blank.sum()) - PER_KIND)
     return recs, ref_col
 
 
 def _duplicate_rows(codes: np.ndarray) -> np.ndarray:
-    import pandas as pd
+    return _later_repeats(codes, codes >= 0)
 
-    ok = codes >= 0
-    dup = pd.Series(codes).duplicated(keep="first").to_numpy() & ok
-    return np.flatnonzero(dup)
+
+def _later_repeats(keys: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    """Rows (where ``mask``) whose key already appeared on an earlier masked row, in row order."""
+    rows = np.flatnonzero(mask)
+    order = np.argsort(keys[rows], kind="stable")
+    sorted_keys = keys[rows][order]
+    repeat = np.zeros(len(rows), dtype=bool)
+    repeat[order[1:]] = sorted_keys[1:] == sorted_keys[:-1]
+    return rows[repeat]
 
 
 # --------------------------------------------------------------------------------------------
@@ -920,7 +1163,15 @@ def _load_key(study: Study, path: Path, problems: _Problems) -> _Key:
     for name in ("label", "item") + (("trial",) if study.trials > 1 else ()):
         if cols[name] is None:
             s = next((c.name for c in table.columns if suggest(c.name, [name]) == name), None)
-            problems.add("key problems", table.problem(None, None, f"no {name!r} column in the key", f"did you mean {s!r}? " if s else "key header: label,item,trial"))
+            problems.add(
+                "key problems",
+                table.problem(
+                    None,
+                    None,
+                    f"no {name!r} column in the key",
+                    f"did you mean {s!r}? " if s else "key header: label,item,trial",
+                ),
+            )
     problems.raise_if_any()
     label_col = table.columns[cols["label"]]  # type: ignore[index]
     item_codes, names = _items(table, cols["item"], problems)  # type: ignore[arg-type]
@@ -934,7 +1185,14 @@ def _load_key(study: Study, path: Path, problems: _Problems) -> _Key:
         rows = np.flatnonzero(labels == j)
         index[u] = int(rows[0])
         if len(rows) > 1:
-            problems.add("key problems", table.problem(int(rows[1]), cols["label"], f"label {u!r} appears twice in the key; first on line {int(table.lines[rows[0]])}"))
+            problems.add(
+                "key problems",
+                table.problem(
+                    int(rows[1]),
+                    cols["label"],
+                    f"label {u!r} appears twice in the key; first on line {int(table.lines[rows[0]])}",
+                ),
+            )
     if b is not None:
         for r in np.flatnonzero(labels == b)[:PER_KIND]:
             problems.add("key problems", table.problem(int(r), cols["label"], "blank label cell"))
@@ -962,7 +1220,12 @@ def _decode_labels(
             more = f" ({len(rows)} rows; first here)" if len(rows) > 1 else ""
             problems.add(
                 "labels not in the key",
-                table.problem(int(rows[0]), col, f"label {u!r} is not in the key {key.table.shown}{more}", f"did you mean {s!r}?" if s else None),
+                table.problem(
+                    int(rows[0]),
+                    col,
+                    f"label {u!r} is not in the key {key.table.shown}{more}",
+                    f"did you mean {s!r}?" if s else None,
+                ),
             )
         else:
             to_key[j] = k
@@ -979,7 +1242,11 @@ def _decode_labels(
         for r in np.flatnonzero(clash)[:PER_KIND]:
             problems.add(
                 "trials that do not match the key",
-                table.problem(int(r), trial_col, f"trial {trial[r] + 1} does not match the key: label {c.uniques[c.codes[r]]!r} is trial {out_trial[r] + 1}"),
+                table.problem(
+                    int(r),
+                    trial_col,
+                    f"trial {trial[r] + 1} does not match the key: label {c.uniques[c.codes[r]]!r} is trial {out_trial[r] + 1}",
+                ),
             )
     # items in key order, keeping only those rated
     present = np.zeros(len(key.names), dtype=bool)
@@ -995,9 +1262,19 @@ def _decode_labels(
 # --------------------------------------------------------------------------------------------
 
 
-def _reference_from_column(table: Table, col: int, recs: _Records, study: Study, problems: _Problems) -> np.ndarray:
+def _reference_from_column(
+    table: Table, col: int, recs: _Records, study: Study, problems: _Problems
+) -> np.ndarray:
     lookup, describe = _code_lookup(study.category_codes)
-    ref_rows = _map_column(table, col, lookup, problems, describe=describe, kind="unknown reference categories", blank_ok=True)
+    ref_rows = _map_column(
+        table,
+        col,
+        lookup,
+        problems,
+        describe=describe,
+        kind="unknown reference categories",
+        blank_ok=True,
+    )
     n = table.n_rows
     item_rows = np.full(n, -2, dtype=np.int64)
     item_rows[recs.row] = recs.item  # wide files repeat each row once per rater column
@@ -1018,32 +1295,81 @@ def _reference_from_column(table: Table, col: int, recs: _Records, study: Study,
             a, b = study.category_codes[upair[idx[0]] % k], study.category_codes[upair[idx[1]] % k]
             if ra > rb:
                 ra, rb, a, b = rb, ra, b, a
-            problems.add("items with two references", table.problem(rb, col, f"two references for item {recs.item_names[it]!r}: {b!r} here, {a!r} on line {int(table.lines[ra])}", "an item has one reference category"))
+            problems.add(
+                "items with two references",
+                table.problem(
+                    rb,
+                    col,
+                    f"two references for item {recs.item_names[it]!r}: {b!r} here, {a!r} on line {int(table.lines[ra])}",
+                    "an item has one reference category",
+                ),
+            )
     lacking = np.flatnonzero(reference == MISSING)
-    _report_lacking(lacking, recs.item_names, Location(table.shown, None, None, table.columns[col].name), problems)
+    _report_lacking(
+        lacking,
+        recs.item_names,
+        Location(table.shown, None, None, table.columns[col].name),
+        problems,
+    )
     return reference
 
 
-def _report_lacking(lacking: np.ndarray, names: list[str], loc: Location, problems: _Problems) -> None:
+def _report_lacking(
+    lacking: np.ndarray, names: list[str], loc: Location, problems: _Problems
+) -> None:
     for it in lacking[:PER_KIND]:
-        problems.add("rated items without a reference", Problem(loc, f"no reference for rated item {names[it]!r}", "give every rated item its reference category"))
+        problems.add(
+            "rated items without a reference",
+            Problem(
+                loc,
+                f"no reference for rated item {names[it]!r}",
+                "give every rated item its reference category",
+            ),
+        )
     problems.count("rated items without a reference", len(lacking) - PER_KIND)
 
 
-def _reference_from_file(study: Study, path: Path, names: list[str], problems: _Problems) -> tuple[np.ndarray | None, Table | None]:
+def _reference_from_file(
+    study: Study, path: Path, names: list[str], problems: _Problems
+) -> tuple[np.ndarray | None, Table | None]:
     table = read_table(path, what="reference")
     item_col, ref_col = table.find("item"), table.find("reference")
     for name, col in (("item", item_col), ("reference", ref_col)):
         if col is None:
             s = next((c.name for c in table.columns if suggest(c.name, [name]) == name), None)
-            problems.add("header problems", table.problem(None, None, f"no {name!r} column in the reference file", f"did you mean {s!r}? " if s else "reference header: item,reference"))
+            problems.add(
+                "header problems",
+                table.problem(
+                    None,
+                    None,
+                    f"no {name!r} column in the reference file",
+                    f"did you mean {s!r}? " if s else "reference header: item,reference",
+                ),
+            )
     for j, c in enumerate(table.columns):
         if j not in (item_col, ref_col):
-            problems.add("header problems", table.problem(None, j, f"unknown column {c.name!r} in the reference file", "reference header: item,reference"))
+            problems.add(
+                "header problems",
+                table.problem(
+                    None,
+                    j,
+                    f"unknown column {c.name!r} in the reference file",
+                    "reference header: item,reference",
+                ),
+            )
     if item_col is None or ref_col is None:
         return None, table
     lookup, describe = _code_lookup(study.category_codes)
-    ref = _map_column(table, ref_col, lookup, problems, describe=describe, kind="unknown reference categories", blank_kind="blank reference cells", blank_message="blank reference cell")
+    ref = _map_column(
+        table,
+        ref_col,
+        lookup,
+        problems,
+        describe=describe,
+        kind="unknown reference categories",
+        blank_kind="blank reference cells",
+        blank_message="blank reference cell",
+    )
     item_codes, ref_names = _items(table, item_col, problems)
     name_index = {n: i for i, n in enumerate(names)}
     to_rated = np.asarray([name_index.get(n, -1) for n in ref_names], dtype=np.int64)
@@ -1054,11 +1380,27 @@ def _reference_from_file(study: Study, path: Path, names: list[str], problems: _
     for r in dup[:PER_KIND]:
         first = int(np.flatnonzero(item_codes == item_codes[r])[0])
         seen_first[int(item_codes[r])] = first
-        problems.add("items with two references", table.problem(int(r), item_col, f"two references for item {ref_names[item_codes[r]]!r}; first on line {int(table.lines[first])}", "an item has one reference row"))
+        problems.add(
+            "items with two references",
+            table.problem(
+                int(r),
+                item_col,
+                f"two references for item {ref_names[item_codes[r]]!r}; first on line {int(table.lines[first])}",
+                "an item has one reference row",
+            ),
+        )
     unrated = [j for j, t in enumerate(to_rated) if t < 0]
     for j in unrated[:PER_KIND]:
         row = int(np.flatnonzero(item_codes == j)[0])
-        problems.add("references for unrated items", table.problem(row, item_col, f"reference given for item {ref_names[j]!r}, which has no ratings", "check the item id, or delete the row"))
+        problems.add(
+            "references for unrated items",
+            table.problem(
+                row,
+                item_col,
+                f"reference given for item {ref_names[j]!r}, which has no ratings",
+                "check the item id, or delete the row",
+            ),
+        )
     problems.count("references for unrated items", len(unrated) - PER_KIND)
     sel = rows_ok[(to_rated[item_codes[rows_ok]] >= 0) & (ref[rows_ok] >= 0)]
     reference[to_rated[item_codes[sel]]] = ref[sel].astype(np.int8)
@@ -1070,13 +1412,22 @@ def _reference_from_file(study: Study, path: Path, names: list[str], problems: _
     return reference, table
 
 
-def _report_missing(table: Table, study: Study, names: list[str], absent: np.ndarray, problems: _Problems) -> None:
+def _report_missing(
+    table: Table, study: Study, names: list[str], absent: np.ndarray, problems: _Problems
+) -> None:
     loc = Location(table.shown, None, None, "rating")
     hint = "rate them, or set missing: allow in the study definition"
     total = int(absent.sum())
     if total <= PER_KIND:
         for i, r, t in zip(*np.nonzero(absent), strict=True):
-            problems.add("missing ratings", Problem(loc, f"no rating for item {names[i]!r} by rater {study.raters[r].id} in trial {t + 1}", hint))
+            problems.add(
+                "missing ratings",
+                Problem(
+                    loc,
+                    f"no rating for item {names[i]!r} by rater {study.raters[r].id} in trial {t + 1}",
+                    hint,
+                ),
+            )
         return
     for r in range(absent.shape[1]):
         for t in range(absent.shape[2]):
@@ -1084,5 +1435,15 @@ def _report_missing(table: Table, study: Study, names: list[str], absent: np.nda
             if not len(items):
                 continue
             shown = ", ".join(repr(names[i]) for i in items[:5]) + (", …" if len(items) > 5 else "")
-            problems.add("missing-rating groups", Problem(loc, f"rater {study.raters[r].id}, trial {t + 1}: {len(items)} item(s) without a rating ({shown})", hint))
-    problems.add("missing-rating totals", Problem(loc, f"{total} ratings missing in all (missing: refuse)", hint))
+            problems.add(
+                "missing-rating groups",
+                Problem(
+                    loc,
+                    f"rater {study.raters[r].id}, trial {t + 1}: {len(items)} item(s) without a rating ({shown})",
+                    hint,
+                ),
+            )
+    problems.add(
+        "missing-rating totals",
+        Problem(loc, f"{total} ratings missing in all (missing: refuse)", hint),
+    )

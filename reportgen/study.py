@@ -109,11 +109,22 @@ class _Reader:
             node = node[k]
         return node
 
-    def error(self, keys: KeyPath, message: str, hint: str | None = None, *, key_node: bool = False) -> None:
+    def error(
+        self, keys: KeyPath, message: str, hint: str | None = None, *, key_node: bool = False
+    ) -> None:
         loc = self.doc.where(keys, key_node=key_node)
-        self.problems.add(loc.path, message, line=loc.line, column=loc.column, key=format_key(keys) or None, hint=hint)
+        self.problems.add(
+            loc.path,
+            message,
+            line=loc.line,
+            column=loc.column,
+            key=format_key(keys) or None,
+            hint=hint,
+        )
 
-    def mapping(self, keys: KeyPath, allowed: tuple[str, ...], *, required: bool = False) -> dict[str, Any] | None:
+    def mapping(
+        self, keys: KeyPath, allowed: tuple[str, ...], *, required: bool = False
+    ) -> dict[str, Any] | None:
         value = self.get(keys)
         if value is _ABSENT or value is None:
             if required:
@@ -124,7 +135,12 @@ class _Reader:
             return None
         for k in value:
             if k not in allowed:
-                self.error((*keys, k), f"unknown key {k!r}", did_you_mean(str(k), allowed) or f"known keys: {', '.join(allowed)}", key_node=True)
+                self.error(
+                    (*keys, k),
+                    f"unknown key {k!r}",
+                    did_you_mean(str(k), allowed) or f"known keys: {', '.join(allowed)}",
+                    key_node=True,
+                )
         return value
 
     def missing(self, keys: KeyPath) -> None:
@@ -168,7 +184,11 @@ class _Reader:
         value = self.get(keys)
         if value is _ABSENT or value is None:
             return None
-        if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        if (
+            isinstance(value, bool)
+            or not isinstance(value, int | float)
+            or not math.isfinite(value)
+        ):
             self.error(keys, f"must be a number, got {self._shown(keys, value)}")
             return None
         return float(value)
@@ -182,12 +202,23 @@ class _Reader:
             return default
         return value
 
-    def choice(self, keys: KeyPath, choices: tuple[str, ...], *, default: str | None, required: bool = False) -> str | None:
+    def choice(
+        self,
+        keys: KeyPath,
+        choices: tuple[str, ...],
+        *,
+        default: str | None,
+        required: bool = False,
+    ) -> str | None:
         value = self.text(keys, required=required)
         if value is None:
             return default
         if value not in choices:
-            self.error(keys, f"must be one of {', '.join(choices)}, got {value!r}", did_you_mean(value, choices))
+            self.error(
+                keys,
+                f"must be one of {', '.join(choices)}, got {value!r}",
+                did_you_mean(value, choices),
+            )
             return default
         return value
 
@@ -214,7 +245,11 @@ class _Reader:
                 return None
             return p
         if not p.exists():
-            self.error(keys, f"{what} file not found: {display_path(p)}", "paths are relative to the study definition's folder")
+            self.error(
+                keys,
+                f"{what} file not found: {display_path(p)}",
+                "paths are relative to the study definition's folder",
+            )
             return None
         if p.is_dir():
             self.error(keys, f"{what} path is a folder, not a file: {display_path(p)}")
@@ -236,7 +271,14 @@ def load_study(path: str | os.PathLike[str]) -> Study:
     """Read and validate a study definition; raise :class:`InputError` listing every problem."""
     doc = read_yaml(path)
     if not isinstance(doc.data, dict):
-        raise InputError([Problem(Location(doc.shown, 1, 1), f"the study definition must be a mapping of keys, got {_kind(doc.data)}")])
+        raise InputError(
+            [
+                Problem(
+                    Location(doc.shown, 1, 1),
+                    f"the study definition must be a mapping of keys, got {_kind(doc.data)}",
+                )
+            ]
+        )
     r = _Reader(doc)
     base = Path(path).resolve().parent
 
@@ -246,7 +288,11 @@ def load_study(path: str | os.PathLike[str]) -> Study:
     r.mapping(("study",), STUDY_KEYS, required=True)
     study_id = r.text(("study", "id"), required=True)
     if study_id is not None and not STUDY_ID.match(study_id):
-        r.error(("study", "id"), f"{study_id!r} may hold only letters, digits, '-', '_' and '.', starting with a letter or digit", "the id is used in folder names")
+        r.error(
+            ("study", "id"),
+            f"{study_id!r} may hold only letters, digits, '-', '_' and '.', starting with a letter or digit",
+            "the id is used in folder names",
+        )
         study_id = None
     title = r.text(("study", "title"), required=True)
     purpose = r.text(("study", "purpose"))
@@ -261,13 +307,22 @@ def load_study(path: str | os.PathLike[str]) -> Study:
     codes = [c.code for c in categories]
     defect = r.text(("defect_category",))
     if defect is not None and codes and defect not in codes:
-        r.error(("defect_category",), f"{defect!r} is not a declared category code ({', '.join(codes)})", did_you_mean(defect, codes))
+        r.error(
+            ("defect_category",),
+            f"{defect!r} is not a declared category code ({', '.join(codes)})",
+            did_you_mean(defect, codes),
+        )
         defect = None
     if scale == "binary":
         if categories and len(categories) != 2:
-            r.error(("categories",), f"a binary study has exactly 2 categories, got {len(categories)}")
+            r.error(
+                ("categories",), f"a binary study has exactly 2 categories, got {len(categories)}"
+            )
         if r.get(("defect_category",)) in (_ABSENT, None):
-            r.error(("defect_category",), "required for a binary study: the code of the nonconforming category")
+            r.error(
+                ("defect_category",),
+                "required for a binary study: the code of the nonconforming category",
+            )
 
     raters = _raters(r)
     trials = r.integer(("trials",), default=1, minimum=1)
@@ -282,7 +337,11 @@ def load_study(path: str | os.PathLike[str]) -> Study:
     if confidence is None:
         confidence = 0.95
     elif not 0.5 < confidence < 1:
-        r.error(("confidence",), f"must be between 0.5 and 1 (exclusive), got {confidence:g}", "for example 0.95")
+        r.error(
+            ("confidence",),
+            f"must be between 0.5 and 1 (exclusive), got {confidence:g}",
+            "for example 0.95",
+        )
         confidence = 0.95
     interval = r.choice(("interval",), INTERVALS, default="clopper-pearson")
 
@@ -295,7 +354,11 @@ def load_study(path: str | os.PathLike[str]) -> Study:
     if half_width is None:
         half_width = 0.10
     elif not 0 < half_width < 0.5:
-        r.error(("target_half_width",), f"must be between 0 and 0.5, got {half_width:g}", "for example 0.10")
+        r.error(
+            ("target_half_width",),
+            f"must be between 0 and 0.5, got {half_width:g}",
+            "for example 0.10",
+        )
         half_width = 0.10
 
     r.mapping(("signoff",), SIGNOFF_KEYS)
@@ -397,7 +460,11 @@ def _categories(r: _Reader) -> list[Category]:
         if raw != raw.strip():
             r.error(code_keys, f"code {raw!r} starts or ends with spaces")
         if code in seen:
-            r.error(code_keys, f"duplicate category code {code!r} (first at categories[{seen[code]}])", "give every category its own code")
+            r.error(
+                code_keys,
+                f"duplicate category code {code!r} (first at categories[{seen[code]}])",
+                "give every category its own code",
+            )
             continue
         seen[code] = i
         out.append(Category(code=code, label=label or code, value=num, description=description))
@@ -414,7 +481,10 @@ def _raters(r: _Reader) -> list[Rater]:
         r.missing(("raters",))
         return []
     if not isinstance(value, list) or not value:
-        r.error(("raters",), f"must be a list of raters, got {_kind(value) if value != [] else 'an empty list'}")
+        r.error(
+            ("raters",),
+            f"must be a list of raters, got {_kind(value) if value != [] else 'an empty list'}",
+        )
         return []
     out: list[Rater] = []
     seen: dict[str, int] = {}
@@ -435,10 +505,18 @@ def _raters(r: _Reader) -> list[Rater]:
         if rid is None:
             continue
         if rid in seen:
-            r.error(id_keys, f"duplicate rater id {rid!r} (first at raters[{seen[rid]}])", "give every rater its own id")
+            r.error(
+                id_keys,
+                f"duplicate rater id {rid!r} (first at raters[{seen[rid]}])",
+                "give every rater its own id",
+            )
             continue
         if "/" in rid:
-            r.error(id_keys, f"rater id {rid!r} must not contain '/'", "'/' separates rater and trial in wide ratings files")
+            r.error(
+                id_keys,
+                f"rater id {rid!r} must not contain '/'",
+                "'/' separates rater and trial in wide ratings files",
+            )
             continue
         seen[rid] = i
         out.append(Rater(id=rid, name=name or rid))
@@ -513,6 +591,9 @@ def _weights(r: _Reader, k: int) -> Any:
             ok = False
         for j in range(i + 1, len(rows)):
             if rows[i][j] != rows[j][i]:
-                r.error((*keys, j, i), f"the matrix must be symmetric: row {i + 1} column {j + 1} is {rows[i][j]:g}, row {j + 1} column {i + 1} is {rows[j][i]:g}")
+                r.error(
+                    (*keys, j, i),
+                    f"the matrix must be symmetric: row {i + 1} column {j + 1} is {rows[i][j]:g}, row {j + 1} column {i + 1} is {rows[j][i]:g}",
+                )
                 ok = False
     return tuple(rows) if ok else "linear"

@@ -140,7 +140,9 @@ def read_yaml(path: str | os.PathLike[str], *, what: str = "study definition") -
     return parse_yaml(text, shown=shown, path=p, what=what)
 
 
-def parse_yaml(text: str, *, shown: str, path: Path | None = None, what: str = "study definition") -> YamlDocument:
+def parse_yaml(
+    text: str, *, shown: str, path: Path | None = None, what: str = "study definition"
+) -> YamlDocument:
     """Parse YAML text strictly (see :func:`read_yaml`)."""
     try:
         loader = StrictLoader(text)
@@ -189,7 +191,9 @@ def _walk(
         try:
             return constructor.construct_object(node, deep=True)
         except (yaml.YAMLError, ValueError, OverflowError) as exc:
-            problems.append(Problem(doc.locations[keys], f"cannot read value {node.value!r}: {exc}"))
+            problems.append(
+                Problem(doc.locations[keys], f"cannot read value {node.value!r}: {exc}")
+            )
             return node.value
     if isinstance(node, yaml.SequenceNode):
         return [

@@ -42,7 +42,9 @@ def default_reference(n_items: int, codes: list[str]) -> list[tuple[str, str]]:
     return [(f"I{i + 1:02d}", codes[i % len(codes)]) for i in range(n_items)]
 
 
-def default_ratings(reference: list[tuple[str, str]], raters: list[str], trials: int, codes: list[str]) -> list[tuple[str, str, int, str]]:
+def default_ratings(
+    reference: list[tuple[str, str]], raters: list[str], trials: int, codes: list[str]
+) -> list[tuple[str, str, int, str]]:
     """Rows ``(item, rater, trial, rating)``: each rater matches the reference except on a
     few items, where they give the next code; which items differs by rater and trial."""
     rows = []
@@ -103,15 +105,23 @@ def write_study(folder: Path, **overrides: Any) -> Path:
     if yaml_text is not None:
         (folder / "study.yaml").write_text(yaml_text, encoding="utf-8")
     else:
-        (folder / "study.yaml").write_text(yaml.safe_dump(definition, sort_keys=False, allow_unicode=True), encoding="utf-8")
+        (folder / "study.yaml").write_text(
+            yaml.safe_dump(definition, sort_keys=False, allow_unicode=True), encoding="utf-8"
+        )
 
     ratings_name = definition.get("ratings")
     if isinstance(ratings_name, dict):
         ratings_name = ratings_name.get("file")
     if isinstance(ratings_name, str) and not (folder / ratings_name).exists():
         if ratings_text is None:
-            rows = ratings_rows if ratings_rows is not None else default_ratings(default_reference(n_items, codes), raters, trials, codes)
-            ratings_text = "item,rater,trial,rating\n" + "".join(f"{i},{r},{t},{c}\n" for i, r, t, c in rows)
+            rows = (
+                ratings_rows
+                if ratings_rows is not None
+                else default_ratings(default_reference(n_items, codes), raters, trials, codes)
+            )
+            ratings_text = "item,rater,trial,rating\n" + "".join(
+                f"{i},{r},{t},{c}\n" for i, r, t, c in rows
+            )
         _write(folder / ratings_name, ratings_text)
     ref_name = definition.get("reference")
     if isinstance(ref_name, str) and not (folder / ref_name).exists():

@@ -256,6 +256,16 @@ def test_caveats_binary(design_a: dict[str, Any]) -> None:
     assert r1["bias_index"] == pytest.approx(1 / 8)
     assert cv["reproducibility"]["observed_agreement"] == pytest.approx(0.75)
     assert cv["reproducibility"]["chance_agreement"] == pytest.approx(34 / 64)
+    # R1 vs R2 over item × trial units, table [[4, 1], [1, 2]]: margins (5/8, 3/8) both ways,
+    # so the largest kappa the margins allow is 1 (Cohen 1960: p_oM = Σ min = 1)
+    assert cv["pairs"] == [
+        {
+            "raters": ["R1", "R2"],
+            "observed_agreement": 0.75,
+            "chance_agreement": pytest.approx(34 / 64),
+            "kappa_max": pytest.approx(1.0),
+        }
+    ]
     prec = cv["precision"]
     assert prec["measure"] == "reproducibility.fleiss_kappa"
     hw = (prec["ci_high"] - prec["ci_low"]) / 2
@@ -698,3 +708,25 @@ def test_items_needed_scaling() -> None:
     assert items_needed(None, 50, 0.10) is None
     with pytest.raises(ValueError):
         items_needed(0.2, 50, 0.0)
+
+
+def test_json_cleaning_turns_numpy_and_nan_into_plain_values() -> None:
+    from reportgen.analysis import _Collector, _jsonable
+
+    col = _Collector()
+    out = _jsonable(
+        {
+            "a": np.float64(0.5),
+            "b": np.int8(3),
+            "c": [np.bool_(True), float("nan")],
+            "d": np.arange(2),
+        },
+        col,
+    )
+    assert out == {"a": 0.5, "b": 3, "c": [True, None], "d": [0, 1]}
+    assert type(out["b"]) is int and type(out["c"][0]) is bool
+    # a non-finite figure is never silent: it is named in the warnings
+    assert col.warnings == [
+        {"measure": "c", "message": "A figure was not a finite number and is shown as undefined."}
+    ]
+    json.dumps(out, allow_nan=False)

@@ -42,24 +42,41 @@ def test_check_prints_the_design(make_study, run_cli) -> None:
 
 
 def test_check_json_design(make_study, run_cli) -> None:
-    rows = [r for r in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]) if not (r[1] == "R2" and r[2] == 2 and r[0] in ("I01", "I02", "I03"))]
+    rows = [
+        r
+        for r in default_ratings(
+            default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+        )
+        if not (r[1] == "R2" and r[2] == 2 and r[0] in ("I01", "I02", "I03"))
+    ]
     path = make_study(missing="allow", ratings_rows=rows)
     code, out, err = run_cli("check", path, "--json")
     assert code == 0, err
     data = json.loads(out)
     assert data["ok"] is True and data["warnings"] == []
     d = data["design"]
-    assert (d["items"], d["raters"], d["trials"], d["scale"]) == (30, ["R1", "R2", "R3"], 2, "ordinal")
+    assert (d["items"], d["raters"], d["trials"], d["scale"]) == (
+        30,
+        ["R1", "R2", "R3"],
+        2,
+        "ordinal",
+    )
     assert d["ratings"] == {"expected": 180, "present": 177}
     assert d["completeness"]["by_rater"]["R2"] == {"present": 57, "expected": 60}
     assert d["completeness"]["by_trial"]["2"] == {"present": 87, "expected": 90}
-    assert d["reference"] == {"items": 30, "items_with_reference": 30, "counts": {"P": 10, "S": 10, "X": 10}}
+    assert d["reference"] == {
+        "items": 30,
+        "items_with_reference": 30,
+        "counts": {"P": 10, "S": 10, "X": 10},
+    }
     assert sum(d["rating_counts"].values()) == 177
     assert [s["role"] for s in d["sources"]] == ["ratings", "reference"]
     assert d["notes"] == ["3 of 180 ratings absent (missing: allow)"]
 
 
-def test_bad_input_exits_2_with_message_on_stderr(make_study, run_cli, monkeypatch: pytest.MonkeyPatch) -> None:
+def test_bad_input_exits_2_with_message_on_stderr(
+    make_study, run_cli, monkeypatch: pytest.MonkeyPatch
+) -> None:
     path = make_study(ratings_text="item,rater,trial,rating\nI01,R1,1,Q\n")
     monkeypatch.chdir(path.parent)
     before = listing(path.parent)
@@ -93,7 +110,11 @@ def test_bad_definition_exit_2(make_study, run_cli, monkeypatch: pytest.MonkeyPa
     monkeypatch.chdir(path.parent)
     code, out, err = run_cli("check", "study.yaml")
     assert code == 2
-    assert "study.yaml:" in err and "trails: unknown key 'trails'" in err and "did you mean 'trials'?" in err
+    assert (
+        "study.yaml:" in err
+        and "trails: unknown key 'trails'" in err
+        and "did you mean 'trials'?" in err
+    )
 
 
 def test_missing_study_file_exit_2(run_cli, tmp_path: Path) -> None:
@@ -120,7 +141,12 @@ def test_warning_category_not_in_reference(make_study) -> None:
 
 
 def test_warning_single_category_rater(make_study) -> None:
-    rows = [(i, r, t, "S" if r == "R2" else c) for i, r, t, c in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])]
+    rows = [
+        (i, r, t, "S" if r == "R2" else c)
+        for i, r, t, c in default_ratings(
+            default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+        )
+    ]
     w = warnings_of(make_study(ratings_rows=rows))
     assert [x["kind"] for x in w] == ["single-category-rater"]
     assert "rater R2 gave every rating as S" in w[0]["message"]
@@ -153,7 +179,9 @@ def test_design_summary_counts(make_study) -> None:
     assert d["rating_counts"] == {"P": 7, "S": 5, "X": 6}
 
 
-def _fake_layers(monkeypatch: pytest.MonkeyPatch, problems: list[Problem], seen: dict[str, Any]) -> None:
+def _fake_layers(
+    monkeypatch: pytest.MonkeyPatch, problems: list[Problem], seen: dict[str, Any]
+) -> None:
     analysis = types.ModuleType("reportgen.analysis")
     verdict = types.ModuleType("reportgen.verdict")
     analysis.__spec__ = importlib.machinery.ModuleSpec("reportgen.analysis", None)
@@ -173,7 +201,9 @@ def _fake_layers(monkeypatch: pytest.MonkeyPatch, problems: list[Problem], seen:
     monkeypatch.setitem(sys.modules, "reportgen.verdict", verdict)
 
 
-def test_check_validates_criteria_through_the_verdict_layer(make_study, run_cli, monkeypatch: pytest.MonkeyPatch) -> None:
+def test_check_validates_criteria_through_the_verdict_layer(
+    make_study, run_cli, monkeypatch: pytest.MonkeyPatch
+) -> None:
     path = make_study(criteria={"rules": [{"measure": "nothing.here", "pass": 0.9}]})
     study = load_study(path)
     loc = study.locate("criteria", "rules", 0, "measure")
@@ -181,11 +211,52 @@ def test_check_validates_criteria_through_the_verdict_layer(make_study, run_cli,
     _fake_layers(monkeypatch, [Problem(loc, "unknown measure 'nothing.here'")], seen)
     code, _, err = run_cli("check", path)
     assert code == 2
-    assert f"study.yaml:{loc.line}:{loc.column}: error: criteria.rules[0].measure: unknown measure 'nothing.here'" in err
-    assert seen == {"analysed": 30, "criteria": {"rules": [{"measure": "nothing.here", "pass": 0.9}]}}
+    assert (
+        f"study.yaml:{loc.line}:{loc.column}: error: criteria.rules[0].measure: unknown measure 'nothing.here'"
+        in err
+    )
+    assert seen == {
+        "analysed": 30,
+        "criteria": {"rules": [{"measure": "nothing.here", "pass": 0.9}]},
+    }
 
 
-def test_check_skips_criteria_when_none(make_study, run_cli, monkeypatch: pytest.MonkeyPatch) -> None:
+def test_check_validates_criteria_from_the_design_when_supported(
+    make_study, run_cli, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    path = make_study(certification={"valid_months": "soon"}, reference=None)
+    verdict = types.ModuleType("reportgen.verdict")
+    verdict.__spec__ = importlib.machinery.ModuleSpec("reportgen.verdict", None)
+    calls: list[tuple[Any, Any]] = []
+
+    def validate_criteria(
+        study: Any, results: Any = None, *, has_reference: bool | None = None
+    ) -> list[Problem]:
+        calls.append((results, has_reference))
+        return [
+            Problem(
+                study.locate("certification", "valid_months"),
+                "must be a whole number",
+                severity="warning",
+            )
+        ]
+
+    verdict.validate_criteria = validate_criteria  # type: ignore[attr-defined]
+    monkeypatch.setitem(sys.modules, "reportgen.verdict", verdict)
+    monkeypatch.setitem(sys.modules, "reportgen.analysis", None)  # analysis must not be needed
+    code, out, err = run_cli("check", path, "--json")
+    assert code == 0, err
+    assert calls == [(None, False)]
+    assert json.loads(out)["warnings"][-1]["kind"] == "criteria"
+    assert (
+        "certification.valid_months: must be a whole number"
+        in json.loads(out)["warnings"][-1]["message"]
+    )
+
+
+def test_check_skips_criteria_when_none(
+    make_study, run_cli, monkeypatch: pytest.MonkeyPatch
+) -> None:
     seen: dict[str, Any] = {}
     _fake_layers(monkeypatch, [Problem(Location("x"), "should not be called")], seen)
     assert run_cli("check", make_study())[0] == 0
@@ -199,7 +270,9 @@ def test_check_help_is_fast_and_imports_no_pandas() -> None:
         "heavy = [m for m in ('pandas', 'matplotlib', 'weasyprint', 'jinja2', 'scipy') if m in sys.modules]\n"
         "print('HEAVY', heavy)\n"
     )
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True
+    ).stdout
     assert "Usage:" in out and "HEAVY []" in out
 
 

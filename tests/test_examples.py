@@ -58,14 +58,21 @@ def test_simulation_regenerates_every_csv_byte_for_byte() -> None:
     files = _simulate_module().generate()
     assert len(files) == 8  # ratings + items for three studies, reference for two
     for path, text in files.items():
-        assert path.read_bytes() == text.encode("utf-8"), f"{path} differs from what simulate.py makes"
+        assert path.read_bytes() == text.encode("utf-8"), (
+            f"{path} differs from what simulate.py makes"
+        )
 
 
 @pytest.mark.parametrize("folder", sorted(EXPECTED))
 def test_demo_study_loads_checks_and_analyses(folder: str) -> None:
     sid, scale, n_items, n_raters, n_trials, has_ref, _ = EXPECTED[folder]
     study = load_study(STUDIES / folder / "study.yaml")
-    assert (study.id, study.scale, study.trials, len(study.raters)) == (sid, scale, n_trials, n_raters)
+    assert (study.id, study.scale, study.trials, len(study.raters)) == (
+        sid,
+        scale,
+        n_trials,
+        n_raters,
+    )
     ratings = load_ratings(study)
     assert (ratings.n_items, ratings.n_raters, ratings.n_trials) == (n_items, n_raters, n_trials)
     assert ratings.has_reference is has_ref
@@ -92,7 +99,10 @@ def test_missing_ratings_of_the_triage_study_are_allowed_and_counted() -> None:
     assert int((ratings.codes < 0).sum()) == _simulate_module().TRIAGE.n_missing == 5
 
 
-@pytest.mark.skipif(importlib.util.find_spec("reportgen.commands.check") is None, reason="check command not there yet")
+@pytest.mark.skipif(
+    importlib.util.find_spec("reportgen.commands.check") is None,
+    reason="check command not there yet",
+)
 @pytest.mark.parametrize("folder", sorted(EXPECTED))
 def test_check_command_passes_on_demo_study(folder: str) -> None:
     from click.testing import CliRunner
@@ -138,7 +148,9 @@ def test_one_verdict_turns_on_the_interval() -> None:
     _, _, judged = _judged("defect-triage")
     (rule,) = judged["verdict"]["rules"]
     assert rule["measure"] == "reproducibility.fleiss_kappa" and rule["judge"] == "lower_bound"
-    assert rule["estimate"] >= rule["pass"] > rule["ci_low"]  # the estimate meets, the bound does not
+    assert (
+        rule["estimate"] >= rule["pass"] > rule["ci_low"]
+    )  # the estimate meets, the bound does not
     assert rule["outcome"] == "marginal"
 
 
@@ -157,26 +169,66 @@ def test_seal_check_certifies_only_the_inspector_on_target() -> None:
     assert outcome == {"INS-A": "certified", "INS-B": "not certified", "INS-C": "not certified"}
 
 
-def test_demo_command_runs_every_study(tmp_path: Path) -> None:
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Any]:
+    """One run of `reportgen demo` (building every report takes a while)."""
     from click.testing import CliRunner
 
     from reportgen.cli import cli
 
-    res = CliRunner().invoke(cli, ["demo", "--output", str(tmp_path), "--studies", str(STUDIES)])
+    out = tmp_path_factory.mktemp("demo")
+    res = CliRunner().invoke(cli, ["demo", "--output", str(out), "--studies", str(STUDIES)])
+    return out, res
+
+
+@pytest.mark.slow
+@pytest.mark.filterwarnings(
+    "ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning"
+)
+def test_demo_command_runs_every_study(demo_run: tuple[Path, Any]) -> None:
+    out, res = demo_run
     assert res.exit_code == 0, res.output
-    for sid, *_ in EXPECTED.values():
-        assert sid in res.output
-        assert (tmp_path / sid).is_dir() and any((tmp_path / sid).iterdir())
-    if HAS_VERDICT:
-        for sid, *_rest, verdict in EXPECTED.values():
-            assert f"{sid}:" in res.output and verdict in res.output.split(f"{sid}:")[1].splitlines()[0]
+    for sid, *_rest, verdict in EXPECTED.values():
+        assert (out / sid).is_dir() and any((out / sid).rglob("*"))
+        line = next(x for x in res.output.splitlines() if x.startswith(f"{sid}:"))
+        if HAS_VERDICT:
+            assert line.endswith(f"-> {verdict}")
 
 
-def test_demo_command_quiet_prints_nothing(tmp_path: Path) -> None:
+def test_demo_command_quiet_prints_nothing(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     from click.testing import CliRunner
 
+    import reportgen.commands.demo as demo
     from reportgen.cli import cli
 
+    seen: list[Path] = []
+
+    def fake(path: Path, *, output: Path, quiet: bool = True) -> dict[str, Any]:
+        seen.append(path)
+        return {
+            "study": path.parent.name,
+            "items": 1,
+            "raters": 1,
+            "trials": 1,
+            "verdict": None,
+            "written": [],
+        }
+
+    monkeypatch.setattr(demo, "run_demo_study", fake)
     res = CliRunner().invoke(cli, ["demo", "--quiet", "--output", str(tmp_path)])
     assert res.exit_code == 0, res.output
     assert res.output == ""
+    assert seen == STUDY_FILES  # the repository's studies/ folder, every study, in order
+
+
+def test_demo_command_without_studies_is_an_input_error(tmp_path: Path) -> None:
+    from click.testing import CliRunner
+
+    from reportgen.cli import cli
+    from reportgen.errors import InputError
+
+    res = CliRunner().invoke(
+        cli, ["demo", "--studies", str(tmp_path), "--output", str(tmp_path / "o")]
+    )
+    assert isinstance(res.exception, InputError)
+    assert "no demo study found" in str(res.exception)

@@ -61,7 +61,9 @@ def _copy_demo(tmp_path: Path, folder: str) -> Path:
     return dst / "study.yaml"
 
 
-def _plan_demo(tmp_path: Path, folder: str, *, pdf: bool = False, seed: int | None = None) -> tuple[Path, Path]:
+def _plan_demo(
+    tmp_path: Path, folder: str, *, pdf: bool = False, seed: int | None = None
+) -> tuple[Path, Path]:
     study_file = _copy_demo(tmp_path, folder)
     study = load_study(study_file)
     items = load_items(study_file.parent / "items.csv", study)
@@ -157,12 +159,16 @@ def test_sheets_reveal_neither_item_id_nor_reference(tmp_path: Path, folder: str
         assert len(shapes) == 1
     # the key sits apart, with its warning
     assert not list((plan_dir / "sheets").glob("key*"))
-    assert "DO NOT GIVE IT TO THE RATERS" in (plan_dir / "key" / KEY_WARNING_NAME).read_text(encoding="utf-8")
+    assert "DO NOT GIVE IT TO THE RATERS" in (plan_dir / "key" / KEY_WARNING_NAME).read_text(
+        encoding="utf-8"
+    )
 
 
 @pytest.mark.render
 # WeasyPrint 70 leaves its sRGB profile file open (a ResourceWarning raised at garbage collection)
-@pytest.mark.filterwarnings("ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning")
+@pytest.mark.filterwarnings(
+    "ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning"
+)
 def test_pdf_sheets_hold_labels_but_no_item_ids(tmp_path: Path) -> None:
     import pypdf
 
@@ -183,9 +189,12 @@ def test_round_trip_filled_entry_file_decodes_to_the_ratings(tmp_path: Path) -> 
     study_dir = study_file.parent
     truth = load_ratings(load_study(study_file))
     known = {
-        (r["item"], r["rater"], int(r["trial"])): r["rating"] for r in _read_csv(study_dir / "ratings.csv")
+        (r["item"], r["rater"], int(r["trial"])): r["rating"]
+        for r in _read_csv(study_dir / "ratings.csv")
     }
-    key = {k["label"]: (k["item"], int(k["trial"])) for k in _read_csv(plan_dir / "key" / "key.csv")}
+    key = {
+        k["label"]: (k["item"], int(k["trial"])) for k in _read_csv(plan_dir / "key" / "key.csv")
+    }
     entry = _read_csv(plan_dir / "ratings-entry.csv")
     with open(study_dir / "entered.csv", "w", encoding="utf-8", newline="") as fh:
         w = csv.writer(fh, lineterminator="\n")
@@ -193,9 +202,13 @@ def test_round_trip_filled_entry_file_decodes_to_the_ratings(tmp_path: Path) -> 
         for row in entry:
             item, trial = key[row["item"]]
             assert int(row["trial"]) == trial
-            w.writerow([row["item"], row["rater"], row["trial"], known[(item, row["rater"], trial)]])
+            w.writerow(
+                [row["item"], row["rater"], row["trial"], known[(item, row["rater"], trial)]]
+            )
     shutil.copy(plan_dir / "key" / "key.csv", study_dir / "key.csv")
-    text = study_file.read_text(encoding="utf-8").replace("ratings: ratings.csv", "ratings: entered.csv\nkey: key.csv")
+    text = study_file.read_text(encoding="utf-8").replace(
+        "ratings: ratings.csv", "ratings: entered.csv\nkey: key.csv"
+    )
     study_file.write_text(text, encoding="utf-8")
 
     decoded = load_ratings(load_study(study_file))
@@ -209,7 +222,13 @@ def test_same_seed_same_plan_other_seed_other_plan(tmp_path: Path) -> None:
     _, a = _plan_demo(tmp_path / "a", "finish-grading")
     _, b = _plan_demo(tmp_path / "b", "finish-grading")
     _, c = _plan_demo(tmp_path / "c", "finish-grading", seed=99)
-    for name in ("key/key.csv", "ratings-entry.csv", "sheets/G1-trial-2.csv", "sheets/G1-trial-2.html", "plan.json"):
+    for name in (
+        "key/key.csv",
+        "ratings-entry.csv",
+        "sheets/G1-trial-2.csv",
+        "sheets/G1-trial-2.html",
+        "plan.json",
+    ):
         assert (a / name).read_bytes() == (b / name).read_bytes()
     assert (a / "key/key.csv").read_bytes() != (c / "key/key.csv").read_bytes()
     assert json.loads((c / "plan.json").read_text())["seed"] == 99
@@ -223,7 +242,13 @@ def test_plan_summary_records_seed_dates_gap_and_design(tmp_path: Path) -> None:
     assert s["seed"] == 5077 and s["gap_days"] == 10 and s["gap_source"] == "study definition"
     assert [d["date"] for d in s["trial_dates"]] == ["2026-11-02", "2026-11-12", "2026-11-22"]
     d = s["design"]
-    assert (d["items"], d["raters"], d["trials"], d["run_sheets"], d["ratings"]) == (50, 3, 3, 9, 450)
+    assert (d["items"], d["raters"], d["trials"], d["run_sheets"], d["ratings"]) == (
+        50,
+        3,
+        3,
+        9,
+        450,
+    )
     assert d["reference_counts"] == {"ACC": 31, "REJ": 19}
     assert d["borderline_items"] == 12 and d["borderline_share"] == pytest.approx(0.24)
     assert s["labels"]["unique_across_trials"] is True
@@ -231,10 +256,22 @@ def test_plan_summary_records_seed_dates_gap_and_design(tmp_path: Path) -> None:
     assert "Seed: 5077" in txt and "10 day(s)" in txt and "Trial 3: planned for 2026-11-22" in txt
 
 
-def test_existing_plan_is_kept_and_refused(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_existing_plan_is_kept_and_refused(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     study_file, plan_dir = _plan_demo(tmp_path, "defect-triage")
     before = {p: p.read_bytes() for p in plan_dir.rglob("*") if p.is_file()}
-    args = ["plan", str(study_file), "--items", str(study_file.parent / "items.csv"), "--output", str(tmp_path / "out"), "--no-pdf", "--seed", "5"]
+    args = [
+        "plan",
+        str(study_file),
+        "--items",
+        str(study_file.parent / "items.csv"),
+        "--output",
+        str(tmp_path / "out"),
+        "--no-pdf",
+        "--seed",
+        "5",
+    ]
     code, _, err = _main(args, capsys)
     assert code == ExitCode.EXISTS
     assert "a plan already exists" in err
@@ -243,7 +280,9 @@ def test_existing_plan_is_kept_and_refused(tmp_path: Path, capsys: pytest.Captur
     assert {p: p.read_bytes() for p in plan_dir.rglob("*") if p.is_file()} == before
 
 
-def test_failed_write_leaves_nothing_behind(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+def test_failed_write_leaves_nothing_behind(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
     import reportgen.plan as planmod
 
     study_file = _copy_demo(tmp_path, "finish-grading")
@@ -271,7 +310,17 @@ def test_cli_writes_plan_and_prints_summary(tmp_path: Path) -> None:
     out = tmp_path / "out"
     res = CliRunner().invoke(
         cli,
-        ["plan", str(study_file), "--items", str(study_file.parent / "items.csv"), "--output", str(out), "--no-pdf", "--start", "2027-01-11"],
+        [
+            "plan",
+            str(study_file),
+            "--items",
+            str(study_file.parent / "items.csv"),
+            "--output",
+            str(out),
+            "--no-pdf",
+            "--start",
+            "2027-01-11",
+        ],
     )
     assert res.exit_code == 0, res.output
     assert "Trial 2: planned for 2027-01-18" in res.output
@@ -308,7 +357,17 @@ def test_bad_item_lists_name_file_and_line(
     p = exc.value.problems()[0]
     assert p.location.path.endswith("items.csv") and p.location.line == line
     assert fragment in p.message
-    code, _, err = _main(["plan", str(study_file), "--items", str(tmp_path / "items.csv"), "--output", str(tmp_path / "o")], capsys)
+    code, _, err = _main(
+        [
+            "plan",
+            str(study_file),
+            "--items",
+            str(tmp_path / "items.csv"),
+            "--output",
+            str(tmp_path / "o"),
+        ],
+        capsys,
+    )
     assert code == ExitCode.INPUT
     assert f"items.csv:{line}" in err and fragment in err
     assert not (tmp_path / "o").exists()  # nothing written
@@ -319,12 +378,18 @@ def test_unknown_plan_key_is_refused_with_its_line(tmp_path: Path) -> None:
     with pytest.raises(InputError) as exc:
         plan_settings(load_study(study_file))
     p = exc.value.problems()[0]
-    assert p.location.line == 12 and p.location.key == "plan.gap_dayz" and "gap_days" in (p.hint or "")
+    assert (
+        p.location.line == 12 and p.location.key == "plan.gap_dayz" and "gap_days" in (p.hint or "")
+    )
 
 
 def test_too_few_items_for_distinct_orders(tmp_path: Path) -> None:
     study = load_study(STUDIES / "seal-check" / "study.yaml")  # 3 raters x 3 trials = 9 sheets
-    items = (PlanItem("A", "ACC", None, 2), PlanItem("B", "REJ", None, 3), PlanItem("C", "ACC", None, 4))
+    items = (
+        PlanItem("A", "ACC", None, 2),
+        PlanItem("B", "REJ", None, 3),
+        PlanItem("C", "ACC", None, 4),
+    )
     with pytest.raises(InputError, match="only 6 different orders"):
         make_plan(study, items, plan_settings(study))
 
@@ -332,12 +397,17 @@ def test_too_few_items_for_distinct_orders(tmp_path: Path) -> None:
 # --------------------------------------------------------------------------- advice
 
 
-@pytest.mark.parametrize(("reliability", "confidence", "n"), [(0.95, 0.95, 59), (0.95, 0.99, 90), (0.99, 0.95, 299)])
+@pytest.mark.parametrize(
+    ("reliability", "confidence", "n"), [(0.95, 0.95, 59), (0.95, 0.99, 90), (0.99, 0.95, 299)]
+)
 def test_zero_failure_sizes(reliability: float, confidence: float, n: int) -> None:
     """n = ln(1−C)/ln(R), rounded up: 59, 90 and 299 (success-run relation)."""
     assert zero_failure_sample_size(reliability, confidence) == n
     assert math.ceil(math.log(1 - confidence) / math.log(reliability)) == n
-    shown = {(z.reliability, z.confidence): z.ratings for z in zero_failure_sizes(load_study(STUDIES / "seal-check" / "study.yaml"))}
+    shown = {
+        (z.reliability, z.confidence): z.ratings
+        for z in zero_failure_sizes(load_study(STUDIES / "seal-check" / "study.yaml"))
+    }
     assert shown[(reliability, confidence)] == n
 
 
@@ -345,7 +415,9 @@ def test_zero_failure_size_follows_the_miss_rate_criterion() -> None:
     zs = zero_failure_sizes(load_study(STUDIES / "seal-check" / "study.yaml"))
     crit = [z for z in zs if z.reason.startswith("criterion")]
     assert len(crit) == 1 and crit[0].reliability == pytest.approx(0.98) and crit[0].ratings == 149
-    assert zero_failure_sizes(load_study(STUDIES / "defect-triage" / "study.yaml")) == []  # no defect category
+    assert (
+        zero_failure_sizes(load_study(STUDIES / "defect-triage" / "study.yaml")) == []
+    )  # no defect category
 
 
 def _fce_q(shares: list[float], kappa_vs_ref: float) -> float:
@@ -365,17 +437,23 @@ def _fce_q(shares: list[float], kappa_vs_ref: float) -> float:
     kap = (po - pe) / (1 - pe)
     assert kap == pytest.approx(a)
     diag = sum(p[i][i] * (1 - (row[i] + col[i]) * (1 - kap)) ** 2 for i in range(k))
-    off = (1 - kap) ** 2 * sum(p[i][j] * (col[i] + row[j]) ** 2 for i in range(k) for j in range(k) if i != j)
+    off = (1 - kap) ** 2 * sum(
+        p[i][j] * (col[i] + row[j]) ** 2 for i in range(k) for j in range(k) if i != j
+    )
     return (diag + off - (kap - pe * (1 - kap)) ** 2) / (1 - pe) ** 2
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize(("defect_share", "kappa"), [(0.3, 0.6), (0.5, 0.8)])
-def test_advice_reproduces_the_cantor_1996_sample_size(tmp_path: Path, defect_share: float, kappa: float) -> None:
+def test_advice_reproduces_the_cantor_1996_sample_size(
+    tmp_path: Path, defect_share: float, kappa: float
+) -> None:
     """Cantor (1996): n = z²·Q/d² items for a 95 % interval of half-width d = 0.10."""
     n_items = 100
     n_bad = round(defect_share * n_items)
-    items_csv = "item,reference\n" + "".join(f"P{i},{'NG' if i < n_bad else 'OK'}\n" for i in range(n_items))
+    items_csv = "item,reference\n" + "".join(
+        f"P{i},{'NG' if i < n_bad else 'OK'}\n" for i in range(n_items)
+    )
     study_file = _write_study(tmp_path, BINARY_ONE_RATER, items=items_csv)
     study = load_study(study_file)
     items = load_items(tmp_path / "items.csv", study)
@@ -383,7 +461,15 @@ def test_advice_reproduces_the_cantor_1996_sample_size(tmp_path: Path, defect_sh
     published = math.ceil(z * z * _fce_q([1 - defect_share, defect_share], kappa) / 0.10**2)
     assert published == {(0.3, 0.6): 296, (0.5, 0.8): 139}[(defect_share, kappa)]
 
-    adv = advise(study, items=items, agreement=kappa, target=0.10, item_counts=(100, 150, 200, 300, 400), runs=400, seed=11)
+    adv = advise(
+        study,
+        items=items,
+        agreement=kappa,
+        target=0.10,
+        item_counts=(100, 150, 200, 300, 400),
+        runs=400,
+        seed=11,
+    )
     (ck,) = [m for m in adv.measures if m.measure == "accuracy.cohen_kappa"]
     assert abs(ck.items_needed - published) <= 0.06 * published, (ck.items_needed, published)
     # and the simulated half-width at the count found is the target, within simulation error
@@ -415,7 +501,10 @@ def test_advice_for_a_demo_study_with_its_item_list() -> None:
     assert fk.rows[-1].estimate == pytest.approx(0.81, abs=0.03)  # two ratings agree at a²
     text = format_advice(adv)
     assert "common practice, no source" in text and "R = 95 %, C = 95 %: 59" in text
-    assert json.loads(json.dumps(adv.as_dict()))["measures"][0]["measure"] == "reproducibility.fleiss_kappa"
+    assert (
+        json.loads(json.dumps(adv.as_dict()))["measures"][0]["measure"]
+        == "reproducibility.fleiss_kappa"
+    )
 
 
 def test_item_set_checks_flag_a_poor_item_set(tmp_path: Path) -> None:
@@ -431,14 +520,26 @@ def test_item_set_checks_flag_a_poor_item_set(tmp_path: Path) -> None:
 
 def test_cli_advise_without_items(tmp_path: Path) -> None:
     res = CliRunner().invoke(
-        cli, ["plan", str(STUDIES / "defect-triage" / "study.yaml"), "--advise", "--runs", "20", "--agreement", "0.85", "--json"]
+        cli,
+        [
+            "plan",
+            str(STUDIES / "defect-triage" / "study.yaml"),
+            "--advise",
+            "--runs",
+            "20",
+            "--agreement",
+            "0.85",
+            "--json",
+        ],
     )
     assert res.exit_code == 0, res.output
     data = json.loads(res.output)
     adv = data["advice"]
     assert "plan" not in data
     assert adv["shares_source"] == "equal shares (no item list)" and adv["agreement"] == 0.85
-    assert [m["measure"] for m in adv["measures"]] == ["reproducibility.fleiss_kappa"]  # 1 trial, no reference
+    assert [m["measure"] for m in adv["measures"]] == [
+        "reproducibility.fleiss_kappa"
+    ]  # 1 trial, no reference
     assert adv["zero_failure"] == [] and adv["item_checks"] == []
 
 
@@ -447,10 +548,99 @@ def test_cli_plan_with_advice_stores_it_in_the_summary(tmp_path: Path) -> None:
     out = tmp_path / "out"
     res = CliRunner().invoke(
         cli,
-        ["plan", str(study_file), "--items", str(study_file.parent / "items.csv"), "--output", str(out), "--no-pdf", "--advise", "--runs", "20"],
+        [
+            "plan",
+            str(study_file),
+            "--items",
+            str(study_file.parent / "items.csv"),
+            "--output",
+            str(out),
+            "--no-pdf",
+            "--advise",
+            "--runs",
+            "20",
+        ],
     )
     assert res.exit_code == 0, res.output
     assert "Sample-size advice" in res.output
     summary = read_plan_summary(out / "RETURNS-TRIAGE-DEMO" / "plan")
-    assert summary is not None and summary["advice"]["measures"][0]["measure"] == "reproducibility.fleiss_kappa"
+    assert (
+        summary is not None
+        and summary["advice"]["measures"][0]["measure"] == "reproducibility.fleiss_kappa"
+    )
     assert summary["design"]["trials"] == 1 and summary["gap_source"] == "default"
+
+
+def test_recommended_layout_round_trip_with_missing_ratings(tmp_path: Path) -> None:
+    """Copy the plan into the study folder, fill the entry file (leaving out the ratings that
+    were skipped), point the study at plan/: same codes, and the plan summary is found."""
+    from reportgen.plan import find_plan_summary
+
+    study_file, plan_dir = _plan_demo(tmp_path, "defect-triage")
+    study_dir = study_file.parent
+    truth = load_ratings(load_study(study_file))
+    known = {(r["item"], r["rater"]): r["rating"] for r in _read_csv(study_dir / "ratings.csv")}
+    shutil.copytree(plan_dir, study_dir / "plan")
+    key = {k["label"]: k["item"] for k in _read_csv(study_dir / "plan" / "key" / "key.csv")}
+    rows = _read_csv(study_dir / "plan" / "ratings-entry.csv")
+    with open(study_dir / "plan" / "ratings-entry.csv", "w", encoding="utf-8", newline="") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["item", "rater", "trial", "rating"])
+        for row in rows:
+            rating = known.get((key[row["item"]], row["rater"]))
+            if rating is not None:  # a skipped item stays out (missing: allow)
+                w.writerow([row["item"], row["rater"], row["trial"], rating])
+    text = study_file.read_text(encoding="utf-8").replace(
+        "ratings: ratings.csv", "ratings: plan/ratings-entry.csv\nkey: plan/key/key.csv"
+    )
+    study_file.write_text(text, encoding="utf-8")
+    study = load_study(study_file)
+    decoded = load_ratings(study)
+    order = [decoded.items.index(i) for i in truth.items]
+    assert np.array_equal(decoded.codes[order], truth.codes)
+    assert int((decoded.codes < 0).sum()) == 5
+    found = find_plan_summary(study)
+    assert found is not None and found["seed"] == 6133 and "blinding" in found
+
+
+def test_item_list_may_leave_out_the_reference_when_the_study_has_none(tmp_path: Path) -> None:
+    study = load_study(STUDIES / "defect-triage" / "study.yaml")
+    (tmp_path / "items.csv").write_text("item,borderline\nA,no\nB,yes\nC,no\n", encoding="utf-8")
+    items = load_items(tmp_path / "items.csv", study)
+    assert [(i.item, i.reference, i.borderline) for i in items] == [
+        ("A", None, False),
+        ("B", None, True),
+        ("C", None, False),
+    ]
+    plan = make_plan(study, items, plan_settings(study))
+    assert plan.summary["design"]["reference_counts"] is None
+    assert len(plan.sheets) == 5 and len({s.rows for s in plan.sheets}) == 5
+
+
+def test_defaults_without_a_plan_block(tmp_path: Path) -> None:
+    import datetime as dt
+
+    study = load_study(_write_study(tmp_path, BINARY_ONE_RATER))
+    s = plan_settings(study, today=dt.date(2027, 3, 1))
+    assert (s.gap_days, s.gap_source, s.seed_source, s.start) == (
+        7,
+        "default",
+        "drawn",
+        dt.date(2027, 3, 1),
+    )
+    assert plan_settings(study, seed=12).seed_source == "command line"
+
+
+def test_plan_command_starts_without_the_heavy_libraries() -> None:
+    import subprocess
+    import sys
+
+    code = (
+        "import sys; from reportgen.cli import cli; "
+        "cli.main(['plan', '--help'], standalone_mode=False); "
+        "print(sorted(m for m in ('numpy', 'pandas', 'jinja2', 'weasyprint', 'matplotlib', 'scipy') if m in sys.modules))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True
+    ).stdout
+    assert out.strip().splitlines()[-1] == "[]"

@@ -14,22 +14,31 @@ import click
 
 
 def _validate_criteria(study: Any, ratings: Any) -> list[Any]:
-    """Problems in the acceptance criteria, when the verdict layer is present."""
+    """Problems in the acceptance criteria, when the verdict layer is present.
+
+    When ``verdict.validate_criteria`` takes ``has_reference`` it judges the criteria from the
+    study design alone (its documented mode for ``check``), so no statistics are computed;
+    otherwise the results of ``analysis.analyse`` are passed.
+    """
     import importlib
     import importlib.util
+    import inspect
 
     if study.criteria is None and study.certification is None:
         return []
-    if importlib.util.find_spec("reportgen.verdict") is None or importlib.util.find_spec("reportgen.analysis") is None:
+    if importlib.util.find_spec("reportgen.verdict") is None:
         return []
-    verdict = importlib.import_module("reportgen.verdict")
-    analysis = importlib.import_module("reportgen.analysis")
-    validate = getattr(verdict, "validate_criteria", None)
-    analyse = getattr(analysis, "analyse", None)
-    if validate is None or analyse is None:
+    validate = getattr(importlib.import_module("reportgen.verdict"), "validate_criteria", None)
+    if validate is None:
         return []
-    results = analyse(study, ratings)
-    return list(validate(study, results))
+    if "has_reference" in inspect.signature(validate).parameters:
+        return list(validate(study, None, has_reference=ratings.has_reference))
+    if importlib.util.find_spec("reportgen.analysis") is None:
+        return []
+    analyse = getattr(importlib.import_module("reportgen.analysis"), "analyse", None)
+    if analyse is None:
+        return []
+    return list(validate(study, analyse(study, ratings)))
 
 
 def run_check(path: str | Path) -> dict[str, Any]:
@@ -77,7 +86,10 @@ def format_design(result: dict[str, Any]) -> str:
         lines.append(f"  {src['role']:<11} {src['path']} ({detail})")
     lines.append("")
     lines.append("design")
-    cats = ", ".join(f"{c['code']} {c['label']}" if c["label"] != c["code"] else c["code"] for c in d["categories"])
+    cats = ", ".join(
+        f"{c['code']} {c['label']}" if c["label"] != c["code"] else c["code"]
+        for c in d["categories"]
+    )
     lines.append(f"  scale       {d['scale']}, {len(d['categories'])} categories: {cats}")
     if d["defect_category"]:
         lines.append(f"  defect      {d['defect_category']}")
@@ -85,14 +97,20 @@ def format_design(result: dict[str, Any]) -> str:
     lines.append(f"  raters      {len(d['raters'])}: {', '.join(d['raters'])}")
     lines.append(f"  trials      {d['trials']}")
     r = d["ratings"]
-    lines.append(f"  ratings     {r['present']} of {r['expected']} expected ({_pct(r['present'], r['expected'])}; missing: {d['missing']})")
+    lines.append(
+        f"  ratings     {r['present']} of {r['expected']} expected ({_pct(r['present'], r['expected'])}; missing: {d['missing']})"
+    )
     lines.append("")
     lines.append("completeness by rater")
     for rid, c in d["completeness"]["by_rater"].items():
-        lines.append(f"  {rid:<10}  {c['present']:>7} of {c['expected']:<7} {_pct(c['present'], c['expected']):>8}")
+        lines.append(
+            f"  {rid:<10}  {c['present']:>7} of {c['expected']:<7} {_pct(c['present'], c['expected']):>8}"
+        )
     lines.append("completeness by trial")
     for t, c in d["completeness"]["by_trial"].items():
-        lines.append(f"  trial {t:<4}  {c['present']:>7} of {c['expected']:<7} {_pct(c['present'], c['expected']):>8}")
+        lines.append(
+            f"  trial {t:<4}  {c['present']:>7} of {c['expected']:<7} {_pct(c['present'], c['expected']):>8}"
+        )
     lines.append("")
     ref = d["reference"]
     if ref is None:
@@ -100,7 +118,9 @@ def format_design(result: dict[str, Any]) -> str:
     else:
         lines.append(f"reference   {ref['items_with_reference']} of {ref['items']} items")
         lines.append("  per category: " + ", ".join(f"{k} {v}" for k, v in ref["counts"].items()))
-    lines.append("ratings per category: " + ", ".join(f"{k} {v}" for k, v in d["rating_counts"].items()))
+    lines.append(
+        "ratings per category: " + ", ".join(f"{k} {v}" for k, v in d["rating_counts"].items())
+    )
     if d["notes"]:
         lines.append("")
         lines.append("notes")

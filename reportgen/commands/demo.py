@@ -62,38 +62,42 @@ def find_demo_studies(folder: Path) -> list[Path]:
 
 
 def run_demo_study(path: Path, *, output: Path, quiet: bool = True) -> dict[str, Any]:
-    """The main job on one study; returns a short summary (id, design, verdict, written files)."""
+    """The main job on one study; returns a short summary (id, design, verdict, written files).
+
+    Check (load the study and its ratings: every input problem raises InputError), compute the
+    results, judge them when the verdict module is present, then build the report when the
+    report builder is present (a demo build replaces an earlier draft), else write
+    ``<output>/<study-id>/results.json``.
+    """
     from ..analysis import analyse
     from ..ratings import load_ratings
     from ..study import load_study
 
     study = load_study(path)
     ratings = load_ratings(study)
+    results = dict(analyse(study, ratings))
+    if _has("reportgen.verdict", "judge"):
+        from ..verdict import judge
+
+        results.update(judge(study, results))
+    verdict = results.get("verdict")
     summary: dict[str, Any] = {
         "study": study.id,
         "path": str(path),
         "items": ratings.n_items,
         "raters": ratings.n_raters,
         "trials": ratings.n_trials,
-        "verdict": None,
+        "verdict": verdict.get("outcome") if isinstance(verdict, dict) else verdict,
         "written": [],
     }
     if _has("reportgen.render.build", "build_report"):
         from ..render.build import build_report
 
-        built = build_report(study, output_dir=output, replace=True)
+        built = build_report(
+            study, output_dir=output, replace=True, ratings=ratings, results=results
+        )
         summary["written"] = [str(p) for p in _paths_of(built)]
-        results = getattr(built, "results", None)
-        if isinstance(results, dict):
-            summary["verdict"] = results.get("verdict")
         return summary
-
-    results = analyse(study, ratings)
-    if _has("reportgen.verdict", "judge"):
-        from ..verdict import judge
-
-        results = judge(study, results)
-        summary["verdict"] = results.get("verdict")
     target = output / study.id / "results.json"
     _write_json_atomic(target, results)
     summary["written"] = [str(target)]

@@ -41,7 +41,9 @@ def _categories(value: str, scale: str) -> list[tuple[str, str]]:
     if len(out) < 2:
         raise click.BadParameter("at least 2 categories are needed")
     if scale == "binary" and len(out) != 2:
-        raise click.BadParameter("a binary study has exactly 2 categories (conforming first, nonconforming second)")
+        raise click.BadParameter(
+            "a binary study has exactly 2 categories (conforming first, nonconforming second)"
+        )
     return out
 
 
@@ -50,22 +52,28 @@ def _q(text: str) -> str:
     return '"' + text.replace("\\", "\\\\").replace('"', '\\"') + '"'
 
 
-def study_yaml(*, study_id: str, scale: str, categories: list[tuple[str, str]], raters: list[str], trials: int) -> str:
+def study_yaml(
+    *, study_id: str, scale: str, categories: list[tuple[str, str]], raters: list[str], trials: int
+) -> str:
     """The commented study definition written by ``init``."""
     cats = "\n".join(f"  - {{code: {_q(c)}, label: {_q(label)}}}" for c, label in categories)
     rater_lines = "\n".join(f"  - {{id: {_q(r)}, name: {_q('Name of ' + r)}}}" for r in raters)
     if scale == "binary":
         defect = f"defect_category: {_q(categories[-1][0])}   # the nonconforming category (required for binary)"
     else:
-        defect = f"# defect_category: {_q(categories[-1][0])}   # optional: the nonconforming category"
-    order = "order matters: first = best" if scale == "ordinal" else "order is only the display order"
+        defect = (
+            f"# defect_category: {_q(categories[-1][0])}   # optional: the nonconforming category"
+        )
+    order = (
+        "order matters: first = best" if scale == "ordinal" else "order is only the display order"
+    )
     return f"""\
 # Study definition written by `reportgen init`.  Fill in ratings.csv and reference.csv, then run
 #   reportgen check study.yaml
 # Every key is described in the README ("Study definition reference").
 
 study:
-  id: {_q(study_id)}            # letters, digits, - _ . (used in folder names)
+{f"  id: {_q(study_id)}":<31} # letters, digits, - _ . (used in folder names)
   title: "Title of the study"   # shown at the top of the report
   purpose: "Why the study is run"   # optional
   characteristic: "What is judged"  # optional, e.g. surface finish
@@ -81,7 +89,7 @@ categories:                     # {order}
 
 raters:                         # one entry per person; ids as used in the ratings file
 {rater_lines}
-trials: {trials}                      # blind passes of each rater over all items
+{f"trials: {trials}":<31} # blind passes of each rater over all items
 
 ratings: ratings.csv            # long layout item,rater,trial,rating (paths relative to this file)
 reference: reference.csv        # item,reference: the agreed correct category of each item
@@ -100,6 +108,12 @@ target_half_width: 0.10         # planning figure: wanted half-width of the agre
 #   rules:
 #     - {{measure: reproducibility.fleiss_kappa, pass: 0.75, marginal: 0.40, judge: lower_bound}}
 
+# Inspector certification (per rater figures; same README section):
+# certification:
+#   valid_months: 12
+#   rules:
+#     - {{measure: repeatability.agreement, pass: 0.90, judge: estimate}}
+
 # signoff: {{prepared_by: "", reviewed_by: "", approved_by: ""}}
 # report: {{paper: A4}}          # A4 | letter
 # plan: {{seed: 7}}              # used by `reportgen plan`
@@ -109,10 +123,7 @@ target_half_width: 0.10         # planning figure: wanted half-width of the agre
 def ratings_template(*, items: list[str], raters: list[str], trials: int) -> str:
     """Long-layout ratings CSV with every item, rater and trial, and blank ratings."""
     rows = ["item,rater,trial,rating"]
-    rows += [f"{i},{r},{t},"
-             for r in raters
-             for t in range(1, trials + 1)
-             for i in items]
+    rows += [f"{i},{r},{t}," for r in raters for t in range(1, trials + 1) for i in items]
     return "\n".join(rows) + "\n"
 
 
@@ -122,13 +133,43 @@ def reference_template(*, items: list[str]) -> str:
 
 @click.command("init")
 @click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
-@click.option("--scale", type=click.Choice(SCALES), default="ordinal", show_default=True, help="Kind of categories.")
-@click.option("--categories", help="Comma-separated codes, each optionally CODE=Label (default depends on --scale).")
+@click.option(
+    "--scale",
+    type=click.Choice(SCALES),
+    default="ordinal",
+    show_default=True,
+    help="Kind of categories.",
+)
+@click.option(
+    "--categories",
+    help="Comma-separated codes, each optionally CODE=Label (default depends on --scale).",
+)
 @click.option("--raters", default="R1,R2,R3", show_default=True, help="Comma-separated rater ids.")
-@click.option("--trials", type=click.IntRange(1, 20), default=3, show_default=True, help="Blind passes per rater.")
-@click.option("--items", "n_items", type=click.IntRange(1, 100_000), default=30, show_default=True, help="Number of items.")
+@click.option(
+    "--trials",
+    type=click.IntRange(1, 20),
+    default=3,
+    show_default=True,
+    help="Blind passes per rater.",
+)
+@click.option(
+    "--items",
+    "n_items",
+    type=click.IntRange(1, 100_000),
+    default=30,
+    show_default=True,
+    help="Number of items.",
+)
 @click.option("--id", "study_id", help="Study id (default: from the folder name).")
-def command(folder: Path, scale: str, categories: str | None, raters: str, trials: int, n_items: int, study_id: str | None) -> None:
+def command(
+    folder: Path,
+    scale: str,
+    categories: str | None,
+    raters: str,
+    trials: int,
+    n_items: int,
+    study_id: str | None,
+) -> None:
     """Start a new study in FOLDER: a commented study.yaml and blank ratings and reference CSVs.
 
     Refuses to overwrite existing files (exit 5).
@@ -148,13 +189,17 @@ def command(folder: Path, scale: str, categories: str | None, raters: str, trial
     width = max(3, len(str(n_items)))
     items = [f"{i:0{width}d}" for i in range(1, n_items + 1)]
     contents = {
-        "study.yaml": study_yaml(study_id=study_id, scale=scale, categories=cats, raters=rater_ids, trials=trials),
+        "study.yaml": study_yaml(
+            study_id=study_id, scale=scale, categories=cats, raters=rater_ids, trials=trials
+        ),
         "ratings.csv": ratings_template(items=items, raters=rater_ids, trials=trials),
         "reference.csv": reference_template(items=items),
     }
     existing = [folder / name for name in FILES if (folder / name).exists()]
     if existing:
-        raise ExistsError(f"{', '.join(str(p) for p in existing)} already exist(s); init never overwrites files")
+        raise ExistsError(
+            f"{', '.join(str(p) for p in existing)} already exist(s); init never overwrites files"
+        )
     folder.mkdir(parents=True, exist_ok=True)
     written: list[Path] = []
     try:
@@ -167,5 +212,7 @@ def command(folder: Path, scale: str, categories: str | None, raters: str, trial
         for p in written:
             p.unlink()
         raise ExistsError(f"{exc.filename} already exists; init never overwrites files") from None
-    click.echo(f"wrote {folder / 'study.yaml'}, {folder / 'ratings.csv'} ({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}")
+    click.echo(
+        f"wrote {folder / 'study.yaml'}, {folder / 'ratings.csv'} ({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}"
+    )
     click.echo(f"next: fill in the blanks, then run: reportgen check {folder / 'study.yaml'}")

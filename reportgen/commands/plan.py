@@ -15,12 +15,14 @@ import datetime as dt
 import json
 import os
 import sys
+from collections.abc import Callable
 from pathlib import Path
 
 import click
 
 
-def _progress(quiet: bool):  # type: ignore[no-untyped-def]
+def _progress(quiet: bool) -> Callable[[str], None] | None:
+    """Progress lines on stderr, only on a terminal and never with --quiet or CI set."""
     if quiet or os.environ.get("CI") or not sys.stderr.isatty():
         return None
 
@@ -47,7 +49,12 @@ def _progress(quiet: bool):  # type: ignore[no-untyped-def]
     show_default=True,
     help="Folder under which <study-id>/plan/ is written.",
 )
-@click.option("--seed", type=click.IntRange(min=0), default=None, help="Seed for labels and orders (default: the study's plan.seed).")
+@click.option(
+    "--seed",
+    type=click.IntRange(min=0),
+    default=None,
+    help="Seed for labels and orders (default: the study's plan.seed).",
+)
 @click.option(
     "--start",
     type=click.DateTime(formats=["%Y-%m-%d"]),
@@ -55,7 +62,9 @@ def _progress(quiet: bool):  # type: ignore[no-untyped-def]
     help="Planned date of the first trial, YYYY-MM-DD (default: plan.start, else today).",
 )
 @click.option("--no-pdf", is_flag=True, help="Write the run sheets as CSV and HTML only (faster).")
-@click.option("--advise", is_flag=True, help="Print the sample-size advice (works without --items).")
+@click.option(
+    "--advise", is_flag=True, help="Print the sample-size advice (works without --items)."
+)
 @click.option(
     "--agreement",
     type=click.FloatRange(min=0.0, max=1.0, min_open=True, max_open=True),
@@ -69,7 +78,13 @@ def _progress(quiet: bool):  # type: ignore[no-untyped-def]
     default=None,
     help="Target half-width of the interval (default: the study's target_half_width).",
 )
-@click.option("--runs", type=click.IntRange(min=20), default=200, show_default=True, help="Simulated studies per item count in the advice.")
+@click.option(
+    "--runs",
+    type=click.IntRange(min=20),
+    default=200,
+    show_default=True,
+    help="Simulated studies per item count in the advice.",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print the plan summary and advice as JSON.")
 @click.option("--quiet", is_flag=True, help="Print nothing but errors.")
 def command(
@@ -88,7 +103,9 @@ def command(
 ) -> None:
     """Write blind, randomised run sheets for a study, or advise on its size."""
     if items_file is None and not advise:
-        raise click.UsageError("give --items items.csv to write run sheets, or --advise for the sample-size advice")
+        raise click.UsageError(
+            "give --items items.csv to write run sheets, or --advise for the sample-size advice"
+        )
 
     from ..plan import load_items, make_plan, plan_settings, summary_text, write_plan
     from ..study import load_study
@@ -103,16 +120,25 @@ def command(
         from ..advice import advise as make_advice
 
         adv = make_advice(
-            study, items=items, agreement=agreement, target=target, runs=runs,
-            seed=settings.seed, progress=progress,
+            study,
+            items=items,
+            agreement=agreement,
+            target=target,
+            runs=runs,
+            seed=settings.seed,
+            progress=progress,
         )
 
     out: dict[str, object] = {}
     if items is not None:
         plan = make_plan(study, items, settings)
         folder = write_plan(
-            plan, study, output_dir=output, pdf=not no_pdf,
-            advice=adv.as_dict() if adv is not None else None, progress=progress,
+            plan,
+            study,
+            output_dir=output,
+            pdf=not no_pdf,
+            advice=adv.as_dict() if adv is not None else None,
+            progress=progress,
         )
         out["plan"] = {**plan.summary, "folder": str(folder)}
         if not quiet and not as_json:

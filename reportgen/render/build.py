@@ -124,7 +124,7 @@ def render_report(
 ) -> RenderedReport:
     """Render charts, HTML and PDF in memory from already computed (and judged) results."""
     from .charts import report_charts
-    from .context import build_context, verdict_view, rater_dicts
+    from .context import build_context, rater_dicts, verdict_view
     from .html import render_html
 
     say = progress or (lambda _m: None)
@@ -145,7 +145,7 @@ def render_report(
 
         say("PDF")
         t0 = time.perf_counter()
-        pdf_bytes = render_pdf(rendered.html, generated_at=generated_at, attachments=_attachments(study, ratings, rjson))
+        pdf_bytes = render_pdf(rendered.print_html, generated_at=generated_at, attachments=_attachments(study, ratings, rjson))
         timings["pdf"] = time.perf_counter() - t0
     return RenderedReport(
         study_id=study.id,

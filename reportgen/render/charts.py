@@ -99,6 +99,9 @@ def _style(plt: Any, name: str) -> None:
     rc["axes.spines.right"] = False
     rc["hatch.linewidth"] = 0.6
     rc["path.simplify"] = True
+    import logging
+
+    logging.getLogger("matplotlib.font_manager").setLevel(logging.ERROR)
 
 
 _FONTS_DONE = False

@@ -12,6 +12,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 from collections.abc import Mapping
+from decimal import ROUND_HALF_UP, Decimal
 from typing import Any
 
 DASH = "—"
@@ -36,7 +37,9 @@ def fmt_num(x: Any, digits: int = 3) -> str:
     v = _value(x)
     if v is None:
         return DASH
-    text = f"{v:.{digits}f}"
+    # half away from zero on the shortest decimal form of the float (0.8125 → 81.3 %, not 81.2 %)
+    q = Decimal(repr(v)).quantize(Decimal(1).scaleb(-digits), rounding=ROUND_HALF_UP)
+    text = f"{q:.{digits}f}"
     if text.startswith("-"):
         text = MINUS + text[1:]
         if set(text[1:]) <= {"0", "."}:  # -0.000 reads as 0.000
@@ -76,7 +79,7 @@ def fmt_pct(x: Any, digits: int = 1) -> str:
     v = _value(x)
     if v is None:
         return DASH
-    return fmt_num(100.0 * v, digits) + THIN + "%"
+    return fmt_num(Decimal(repr(v)) * 100, digits) + THIN + "%"
 
 
 def fmt_int(n: Any) -> str:

@@ -42,7 +42,8 @@ FALLBACK = ("Report Sans Wide", "normal", "DroidSansFallback.ttf")
 
 @dataclass(frozen=True)
 class RenderedHtml:
-    html: str
+    html: str  #: the self-contained HTML file (fonts embedded as data: URIs)
+    print_html: str  #: the same document with the fonts referenced from the package (for WeasyPrint)
     templates: tuple[str, ...]  # templates used (for the appendix and the tests)
 
 
@@ -85,15 +86,21 @@ def _cmap(name: str) -> frozenset[int]:
     path = font_path(name)
     if not path.is_file():
         raise RenderError(f"the shipped font {name} is missing from {path.parent}; reinstall reportgen")
-    return frozenset(TTFont(str(path), lazy=True).getBestCmap())
+    with TTFont(str(path)) as font:
+        return frozenset(font.getBestCmap())
 
 
 @functools.lru_cache(maxsize=32)
 def _subset(name: str, text: str) -> bytes:
-    from fontTools import subset
     from fontTools.ttLib import TTFont
 
-    font = TTFont(str(font_path(name)), recalcTimestamp=False)
+    with TTFont(str(font_path(name)), recalcTimestamp=False) as font:
+        return _subset_font(font, text)
+
+
+def _subset_font(font: Any, text: str) -> bytes:
+    from fontTools import subset
+
     opts = subset.Options()
     opts.layout_features = ["*"]  # keep shaping for Arabic, Hebrew, ligatures
     opts.name_IDs = ["*"]  # keep copyright and licence entries
@@ -139,23 +146,31 @@ def check_glyphs(text: str) -> tuple[str, str]:
     return "".join(sorted(chars - set(need_wide))), "".join(need_wide)
 
 
-def font_face_css(main_chars: str, wide_chars: str) -> str:
+def font_face_css(main_chars: str, wide_chars: str, *, embed: bool = True) -> str:
+    """@font-face rules: subset fonts as data: URIs (``embed``), or the package's font files.
+
+    The PDF is rendered with ``embed=False``: WeasyPrint loads the shipped TTFs through the
+    restricted fetcher (relative to the package template folder) and subsets them itself,
+    which avoids parsing half a megabyte of base64 in CSS.
+    """
     keep = "".join(sorted(set(main_chars) | set(BASE_CHARS)))
+
+    def src(name: str, text: str) -> str:
+        if not embed:
+            return f'url("fonts/{name}") format("truetype")'
+        data = base64.b64encode(_subset(name, text)).decode("ascii")
+        return f'url("data:font/ttf;base64,{data}") format("truetype")'
+
     rules = []
     for family, weight, name in FACES:
-        data = base64.b64encode(_subset(name, keep)).decode("ascii")
         rules.append(
-            f'@font-face {{ font-family: "{family}"; font-weight: {weight}; font-style: normal; '
-            f'src: url("data:font/ttf;base64,{data}") format("truetype"); }}'
+            f'@font-face {{ font-family: "{family}"; font-weight: {weight}; font-style: normal; src: {src(name, keep)}; }}'
         )
     if wide_chars:
         family, weight, name = FALLBACK
-        data = base64.b64encode(_subset(name, wide_chars)).decode("ascii")
+        wide_src = src(name, wide_chars)
         for w in ("normal", "bold"):
-            rules.append(
-                f'@font-face {{ font-family: "{family}"; font-weight: {w}; font-style: normal; '
-                f'src: url("data:font/ttf;base64,{data}") format("truetype"); }}'
-            )
+            rules.append(f'@font-face {{ font-family: "{family}"; font-weight: {w}; font-style: normal; src: {wide_src}; }}')
     return "\n".join(rules)
 
 
@@ -185,8 +200,10 @@ def render_html(ctx: ReportContext, *, override_dir: Path | None = None) -> Rend
     except jinja2.exceptions.SecurityError as exc:
         raise RenderError(f"an override template tried something not allowed: {exc}") from None
     main, wide = check_glyphs(document_text(html))
-    css = font_face_css(main, wide)
     if html.count(FONT_SENTINEL) != 1:
         raise RenderError("the report template must include {{ font_css }} exactly once, inside <style>")
-    html = html.replace(FONT_SENTINEL, css)
-    return RenderedHtml(html, tuple(dict.fromkeys(used)))
+    return RenderedHtml(
+        html.replace(FONT_SENTINEL, font_face_css(main, wide, embed=True)),
+        html.replace(FONT_SENTINEL, font_face_css(main, wide, embed=False)),
+        tuple(dict.fromkeys(used)),
+    )

@@ -19,6 +19,7 @@ import datetime as dt
 import logging
 import mimetypes
 import urllib.request
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -110,7 +111,10 @@ def render_pdf(
             )
             for a in attachments
         ]
-        pdf = doc.write_pdf(pdf_variant=PDF_VARIANT, attachments=atts)
+        with warnings.catch_warnings():
+            # WeasyPrint 70 opens its sRGB profile for PDF/A and never closes it
+            warnings.simplefilter("ignore", ResourceWarning)
+            pdf = doc.write_pdf(pdf_variant=PDF_VARIANT, attachments=atts)
     except BaseException as exc:  # FatalURLFetchingError derives from BaseException
         if type(exc).__name__ == "FatalURLFetchingError" or fetcher.refused:
             what = ", ".join(fetcher.refused[:3]) or str(exc)

@@ -227,11 +227,8 @@ def kendall_tau_b(
 
     # Null variance of S with ties in both rankings (Kendall 1948).
     def tie_sums(g: np.ndarray) -> tuple[float, float, float]:
-        return (
-            float((g * (g - 1) * (2 * g + 5)).sum()),
-            float((g * (g - 1)).sum()),
-            float((g * (g - 1) * (g - 2)).sum()),
-        )
+        pairs = g * (g - 1.0)
+        return float(pairs @ (2.0 * g + 5.0)), float(pairs.sum()), float(pairs @ (g - 2.0))
 
     tx1, tx2, tx3 = tie_sums(rows)
     ty1, ty2, ty3 = tie_sums(cols)

@@ -27,25 +27,30 @@ pairwise kappas on random data (test-only cross-checks).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+import functools
+from collections.abc import Iterator, Sequence
 
 import numpy as np
 
-from .cohen import _categories_iv, _cohen_estimate, _kappa_from_tables, weights_iv
+from .cohen import _categories_iv, _cohen_estimates, _kappa_from_tables, weights_iv
 from .proportion import _confidence_level_iv
 from .results import Estimate
 
 # --------------------------------------------------------------------------- helpers
 
 
+_CHUNK_ITEMS = 1 << 16  # items per one-hot block (bounds transient memory on big studies)
+
+
 def _matrix_iv(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
     arr = np.asarray(codes)
     if arr.ndim != 2:
         raise ValueError(f"codes must be a 2-D array items × raters, got {arr.ndim} dimension(s)")
-    if arr.size and (arr.dtype.kind not in "iu" or arr.dtype.kind == "b"):
+    if arr.size == 0:
+        return arr.astype(np.int64)
+    if arr.dtype.kind not in "iu":
         raise TypeError(f"codes must hold integer category codes (-1 = missing), got {arr.dtype}")
-    arr = arr.astype(np.int64, copy=False)
-    if arr.size and (arr.min() < -1 or arr.max() >= k):
+    if arr.min() < -1 or arr.max() >= k:
         raise ValueError(f"codes hold values outside -1 .. {k - 1}")
     return arr
 
@@ -59,37 +64,68 @@ def _pair_index(n_raters: int) -> tuple[np.ndarray, np.ndarray]:
     return g.astype(np.int64), h.astype(np.int64)
 
 
-def _pair_cells(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Flat cell index p·k² + a·k + b of each (item, pair) and a mask of pairs both rated."""
-    g, h = _pair_index(codes.shape[1])
-    a = codes[:, g]
-    b = codes[:, h]
-    valid = (a >= 0) & (b >= 0)
-    cell = np.arange(g.size, dtype=np.int64) * (k * k) + a * k + b
-    return cell, valid
+def _onehot_blocks(codes: np.ndarray, k: int) -> Iterator[np.ndarray]:
+    """Blocks of the (items, raters, k) one-hot of ``codes``; a missing rating is all zero."""
+    cats = np.arange(k)  # int64: safe against small code dtypes
+    for start in range(0, codes.shape[0], _CHUNK_ITEMS):
+        yield codes[start : start + _CHUNK_ITEMS, :, None] == cats
+
+
+def _gram_and_counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """(r·k, r·k) Gram matrix of the rater one-hots, and (n, k) ratings per category per item.
+
+    Block (g, h) of the Gram matrix is the k×k table of raters g and h over the items both rated
+    (missing ratings have zero one-hot rows).  float32 products of 0/1 values are exact for
+    blocks below 2^24 items; blocks are summed in float64.
+    """
+    n, r = codes.shape
+    if n <= _CHUNK_ITEMS:
+        block = codes[:, :, None] == np.arange(k)
+        x = block.reshape(n, r * k).astype(np.float32)
+        return (x.T @ x).astype(np.float64), block.sum(axis=1, dtype=np.float64)
+    gram = np.zeros((r * k, r * k))
+    counts = np.empty((n, k))
+    start = 0
+    for block in _onehot_blocks(codes, k):
+        x = block.reshape(block.shape[0], r * k).astype(np.float32)
+        gram += x.T @ x
+        counts[start : start + block.shape[0]] = block.sum(axis=1)
+        start += block.shape[0]
+    return gram, counts
+
+
+@functools.lru_cache(maxsize=32)
+def _pair_gather_index(r: int, k: int) -> np.ndarray:
+    """Flat indices into the (r·k, r·k) Gram matrix giving the (n_pairs, k, k) pair tables."""
+    g, h = _pair_index(r)
+    a = np.arange(k)
+    rows = g[:, None, None] * k + a[None, :, None]
+    cols = h[:, None, None] * k + a[None, None, :]
+    index = rows * (r * k) + cols
+    index.flags.writeable = False
+    return index
+
+
+def _tables_from_gram(gram: np.ndarray, r: int, k: int) -> np.ndarray:
+    return gram.ravel().take(_pair_gather_index(r, k))
 
 
 def pair_tables(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
     """(n_pairs, k, k) int64 tables of rater pairs (g < h, in ``np.triu_indices`` order).
 
-    One ``np.bincount`` over all items and pairs; each table counts the items both raters rated.
+    Each table counts the items both raters rated (one Gram product of the rater one-hots).
     """
     k = _categories_iv(k)
     c = _matrix_iv(codes, k)
-    n_pairs = c.shape[1] * (c.shape[1] - 1) // 2
-    cell, valid = _pair_cells(c, k)
-    counts = np.bincount(cell[valid], minlength=n_pairs * k * k)
-    return counts.reshape(n_pairs, k, k).astype(np.int64)
+    gram, _ = _gram_and_counts(c, k)
+    return _tables_from_gram(gram, c.shape[1], k).astype(np.int64)
 
 
-def _item_agreement(codes: np.ndarray) -> tuple[int, int]:
-    """(items with ≥ 2 ratings, those on which every present rating is the same)."""
-    present = codes >= 0
-    m = present.sum(axis=1)
-    hi = np.where(present, codes, -1).max(axis=1)
-    lo = np.where(present, codes, np.iinfo(np.int64).max).min(axis=1)
+def _agreement_counts(counts: np.ndarray) -> tuple[int, int]:
+    """(items with ≥ 2 ratings, those on which every rating is the same) from (n, k) counts."""
+    m = counts.sum(axis=1)
     multi = m >= 2
-    return int(multi.sum()), int((multi & (hi == lo)).sum())
+    return int(multi.sum()), int((multi & (counts.max(axis=1) == m)).sum())
 
 
 # --------------------------------------------------------------------------- pairwise Cohen
@@ -115,14 +151,12 @@ def pairwise_cohen(
     c = _matrix_iv(codes, k)
     w = weights_iv(weights, k)
     r = c.shape[1]
-    n_pairs = r * (r - 1) // 2
-    cell, valid = _pair_cells(c, k)
-    tables = np.bincount(cell[valid], minlength=n_pairs * k * k).reshape(n_pairs, k, k)
-    tables = tables.astype(np.float64)
+    gram, _ = _gram_and_counts(c, k)
+    tables = _tables_from_gram(gram, r, k)
     g_idx, h_idx = _pair_index(r)
     out: list[list[Estimate | None]] = [[None] * r for _ in range(r)]
-    for p, (g, h) in enumerate(zip(g_idx.tolist(), h_idx.tolist(), strict=True)):
-        est = _cohen_estimate(tables[p], w, level)
+    estimates = _cohen_estimates(tables, w, level)
+    for est, g, h in zip(estimates, g_idx.tolist(), h_idx.tolist(), strict=True):
         out[g][h] = est
         out[h][g] = est
     return out
@@ -141,8 +175,12 @@ def light_kappa_features(codes: np.ndarray | list[list[int]], k: int) -> np.ndar
     c = _matrix_iv(codes, k)
     n, r = c.shape
     n_pairs = r * (r - 1) // 2
+    g, h = _pair_index(r)
+    a = c[:, g].astype(np.int64)
+    b = c[:, h].astype(np.int64)
+    valid = (a >= 0) & (b >= 0)
+    cell = np.arange(n_pairs, dtype=np.int64) * (k * k) + a * k + b
     feats = np.zeros((n, n_pairs * k * k), dtype=np.float64)
-    cell, valid = _pair_cells(c, k)
     rows = np.broadcast_to(np.arange(n)[:, None], cell.shape)
     feats[rows[valid], cell[valid]] = 1.0
     return feats
@@ -200,7 +238,8 @@ def light_kappa(
     level = _confidence_level_iv(confidence_level)
     c = _matrix_iv(codes, k)
     r = c.shape[1]
-    items, agreeing = _item_agreement(c)
+    gram, counts = _gram_and_counts(c, k)
+    items, agreeing = _agreement_counts(counts)
     if r < 2:
         return Estimate(
             estimate=None,
@@ -210,16 +249,16 @@ def light_kappa(
             warnings=("Light's kappa is undefined: it needs at least two raters.",),
         )
     w = weights_iv(weights, k)
-    # Column sums of light_kappa_features, computed directly by one bincount (identical counts).
     n_pairs = r * (r - 1) // 2
-    cell, valid = _pair_cells(c, k)
-    sums = np.bincount(cell[valid], minlength=n_pairs * k * k).astype(np.float64)
+    # The point estimate goes through the bootstrap's formula (_light_parts); its sums are the
+    # column sums of light_kappa_features (the pair tables), from one Gram product.
+    sums = _tables_from_gram(gram, r, k).reshape(-1)
     pair_k, mean = _light_parts(sums, k, n_pairs, w)
     value = float(mean)
     g_idx, h_idx = _pair_index(r)
-    pairs = [(int(g), int(h)) for g, h in zip(g_idx, h_idx, strict=True)]
+    pairs = list(zip(g_idx.tolist(), h_idx.tolist(), strict=True))
     extra: dict[str, object] = {
-        "pair_kappas": [None if not np.isfinite(v) else float(v) for v in pair_k],
+        "pair_kappas": [None if v != v else v for v in pair_k.tolist()],  # NaN -> None
         "pairs": pairs,
     }
     if not np.isfinite(value):
@@ -265,20 +304,49 @@ def conger_kappa_features(
     return _conger_features(_matrix_iv(codes, k), k, weights_iv(weights, k))
 
 
-def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
-    n, r = c.shape
-    present = c >= 0
-    rows, raters = np.nonzero(present)
-    cats = c[rows, raters]
-    counts = np.bincount(rows * k + cats, minlength=n * k).reshape(n, k).astype(np.float64)
+def _item_disagreement(counts: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per item: (≥ 2 ratings mask, Σ_kl (1 − w_kl) r_ik r_il / (r_i(r_i − 1)), 0 below two)."""
     m = counts.sum(axis=1)
     multi = m >= 2
-    feats = np.zeros((n, 2 + r * k), dtype=np.float64)
-    feats[:, 0] = multi
     dis = ((counts @ (1.0 - w)) * counts).sum(axis=1)
-    feats[multi, 1] = dis[multi] / (m[multi] * (m[multi] - 1.0))
-    feats[rows, 2 + raters * k + cats] = 1.0
+    out = np.zeros_like(dis)
+    np.divide(dis, m * (m - 1.0), out=out, where=multi)
+    return multi, out
+
+
+def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
+    n, r = c.shape
+    onehot = (c[:, :, None] == np.arange(k)).reshape(n, r * k)
+    multi, dis = _item_disagreement(onehot.reshape(n, r, k).sum(axis=1).astype(np.float64), w)
+    feats = np.empty((n, 2 + r * k), dtype=np.float64)
+    feats[:, 0] = multi
+    feats[:, 1] = dis
+    feats[:, 2:] = onehot
     return feats
+
+
+def _conger_sums(c: np.ndarray, k: int, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Column sums of the Conger features without building them (same numbers), and counts."""
+    n, r = c.shape
+    if n <= _CHUNK_ITEMS:
+        block = c[:, :, None] == np.arange(k)
+        counts = block.sum(axis=1, dtype=np.float64)
+        multi, dis = _item_disagreement(counts, w)
+        head = np.array([multi.sum(), dis.sum()], dtype=np.float64)
+        return np.concatenate([head, block.sum(axis=0, dtype=np.float64).ravel()]), counts
+    sums = np.zeros(2 + r * k)
+    counts = np.empty((n, k))
+    start = 0
+    for block in _onehot_blocks(c, k):
+        size = block.shape[0]
+        block_counts = block.sum(axis=1, dtype=np.float64)
+        counts[start : start + size] = block_counts
+        multi, dis = _item_disagreement(block_counts, w)
+        sums[0] += multi.sum()
+        sums[1] += dis.sum()
+        sums[2:] += block.sum(axis=0, dtype=np.float64).reshape(-1)
+        start += size
+    return sums, counts
 
 
 def conger_kappa_from_sums(
@@ -286,8 +354,10 @@ def conger_kappa_from_sums(
 ) -> np.ndarray:
     """Conger's kappa from column sums of :func:`conger_kappa_features`, shape (..., 2 + r·k).
 
-    NaN where undefined: no item with two ratings, a rater with no rating, or chance
-    agreement 1.
+    Raters with no rating in the sums are left out (as the point estimate does), so a
+    bootstrap replicate that happens to draw none of a rater's items stays defined.  NaN where
+    undefined: no item with two ratings, fewer than two raters with ratings, or chance
+    agreement 1.  The sums must come from features built with the same ``weights``.
     """
     k = _categories_iv(k)
     s = np.asarray(sums, dtype=np.float64)
@@ -306,16 +376,18 @@ def _conger_parts(
     r = (s.shape[-1] - 2) // k
     d = 1.0 - w
     n2 = s[..., 0]
+    # Conger (1980) / Gwet (2014): p_e = Σ_kl w_kl Σ_{g≠h} p_gk p_hl / (r(r − 1)).
     classif = s[..., 2:].reshape(s.shape[:-1] + (r, k))
     n_g = classif.sum(axis=-1)
-    rated = (n_g > 0).all(axis=-1)
-    share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]  # p_gk
+    r_eff = (n_g > 0).sum(axis=-1).astype(np.float64)  # raters with at least one rating
+    share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]  # p_gk (0 for idle raters)
     total = share.sum(axis=-2)  # Σ_g p_gk
     # Σ_kl d_kl Σ_{g≠h} p_gk p_hl = Σ_kl d_kl [(Σ_g p_gk)(Σ_h p_hl) − Σ_g p_gk p_gl]
     cross = ((total @ d) * total).sum(axis=-1) - ((share @ d) * share).sum(axis=(-2, -1))
-    dis_exp = cross / (r * (r - 1.0))  # 1 − p_e
+    pairs = r_eff * (r_eff - 1.0)
+    dis_exp = np.divide(cross, pairs, out=np.zeros(np.shape(n2)), where=pairs > 0)  # 1 − p_e
     dis_obs = np.divide(s[..., 1], n2, out=np.full(np.shape(n2), np.nan), where=n2 > 0)  # 1 − p_a
-    ok = (n2 > 0) & rated & (dis_exp > 0.0)
+    ok = (n2 > 0) & (r_eff >= 2) & (dis_exp > 0.0)
     ratio = np.divide(dis_obs, dis_exp, out=np.full(np.shape(n2), np.nan), where=ok)
     return 1.0 - ratio, dis_obs, dis_exp
 
@@ -348,7 +420,10 @@ def conger_kappa(
         idle = [_rater_name(rater_labels, g) for g in np.flatnonzero(~rated)]
         warnings.append(f"Conger's kappa leaves out raters with no rating: {', '.join(idle)}.")
         c = c[:, rated]
-    items, agreeing = _item_agreement(c)
+    # The point estimate goes through the bootstrap's formula (_conger_parts); its sums are the
+    # column sums of conger_kappa_features, accumulated block by block without building them.
+    sums, counts = _conger_sums(c, k, w)
+    items, agreeing = _agreement_counts(counts)
 
     def undefined(reason: str) -> Estimate:
         return Estimate(
@@ -363,8 +438,6 @@ def conger_kappa(
         return undefined("Conger's kappa is undefined: it needs at least two raters with ratings.")
     if items == 0:
         return undefined("Conger's kappa is undefined: no item has two or more ratings.")
-    # One code path with the bootstrap: the point estimate comes from the feature sums.
-    sums = _conger_features(c, k, w).sum(axis=0)
     kappa_arr, dis_obs, dis_exp = _conger_parts(sums, k, w)
     value = float(kappa_arr)
     extra: dict[str, object] = {"p_a": 1.0 - float(dis_obs), "p_e": 1.0 - float(dis_exp)}
