@@ -223,8 +223,8 @@ def read_table(
         end = len(text) if end < 0 else end
         first = text[pos:end].strip()
         if first and delimiter is None and first.lower().startswith("sep=") and len(first) <= 6:
-            d = first[4:] or ","
-            delimiter = "\t" if d in ("\\t", "\t") else d[0]
+            d = text[pos:end].rstrip("\r\n").lstrip()[4:5] or ","  # the tab of "sep=\t" survives
+            delimiter = "\t" if first[4:] == "\\t" else d
         elif first:
             break
         pos, line_no = end + 1, line_no + 1

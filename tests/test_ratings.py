@@ -179,6 +179,7 @@ def test_header_case_spaces_and_column_order(make_study) -> None:
         ("tab", lambda: long_csv(ROWS, sep="\t")),
         ("crlf", lambda: long_csv(ROWS, end="\r\n")),
         ("excel-sep-line", lambda: "sep=;\n" + long_csv(ROWS, sep=";")),
+        ("excel-sep-tab-line", lambda: "sep=\t\n" + long_csv(ROWS, sep="\t")),
         (
             "stray-spaces",
             lambda: (
@@ -554,6 +555,11 @@ BAD: list[tuple[str, dict[str, Any], list[str]]] = [
         "reference-for-unrated",
         {"reference_rows": [*REF, ("I99", "P")]},
         ["reference.csv:32: error: item: reference given for item 'I99', which has no ratings"],
+    ),
+    (
+        "sep-line-and-blank-lines-offset",
+        {"ratings_text": "sep=;\n\n" + with_row(3, ("I04", "R1", 1, "Sx")).replace(",", ";")},
+        ["ratings.csv:7: error: rating: unknown category 'Sx'"],
     ),
     (
         "two-references-file",

@@ -247,11 +247,47 @@ def format_summary(results: dict[str, Any]) -> str:
     if miss:
         lines.append(f"  Missing ratings: {miss['missing']} of {miss['expected_ratings']}")
 
+    lines += _verdict_lines(results)
+
     warnings = results.get("warnings") or []
     if warnings:
         lines += ["", f"Warnings ({len(warnings)})"]
         lines += [f"  {w['measure']}: {w['message']}" for w in warnings]
     return "\n".join(lines)
+
+
+def _verdict_lines(results: dict[str, Any]) -> list[str]:
+    """Verdict, criteria source, one line per check, inspectors and the first actions."""
+    lines: list[str] = []
+    verdict = results.get("verdict")
+    if verdict is None:
+        return lines
+    lines += ["", "Verdict"]
+    lines.append(f"  {verdict.get('sentence', '')}")
+    crit = results.get("criteria") or {}
+    if crit.get("source"):
+        lines.append(f"  Criteria source: {crit['source']}")
+    for caution in crit.get("cautions") or []:
+        lines.append(f"  Caution: {caution}")
+    for rule in verdict.get("rules") or []:
+        label = rule.get("label") or rule.get("measure")
+        value = _num(rule.get("value"))
+        level = _num(rule.get("level"))
+        lines.append(
+            f"  {rule.get('outcome', ''):<8} {label}: {value} judged against {level}"
+            f" ({rule.get('judge_basis') or rule.get('judge') or 'estimate'})"
+        )
+    cert = results.get("certification")
+    if cert and cert.get("inspectors"):
+        lines += ["", "Inspector certification"]
+        for ins in cert["inspectors"]:
+            until = f", valid until {ins['valid_until']}" if ins.get("valid_until") else ""
+            lines.append(f"  {ins.get('id')}: {ins.get('outcome')}{until}")
+    actions = results.get("actions") or []
+    if actions:
+        lines += ["", "Next steps"]
+        lines += [f"  {a.get('rank')}. {a.get('text')}" for a in actions[:5]]
+    return lines
 
 
 def _show_progress(quiet: bool) -> bool:
@@ -274,6 +310,7 @@ def command(study_path: str, as_json: bool, quiet: bool) -> None:
     from ..analysis import analyse
     from ..ratings import load_ratings
     from ..study import load_study
+    from ..verdict import judge
 
     progress = None
     if _show_progress(quiet):
@@ -284,6 +321,7 @@ def command(study_path: str, as_json: bool, quiet: bool) -> None:
     study = load_study(study_path)
     ratings = load_ratings(study)
     results = analyse(study, ratings, progress=progress)
+    results.update(judge(study, results))
     if as_json:
         click.echo(json.dumps(results, indent=2, allow_nan=False))
     else:

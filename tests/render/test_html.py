@@ -124,7 +124,7 @@ def test_plain_words_reading_beside_numbers(built_binary: Built) -> None:
 
 def test_safety_caution(built_binary: Built, built_ordinal: Built) -> None:
     assert built_binary.study.safety_related
-    assert "supports, and does not replace, the customer's requirements" in built_binary.html
+    assert "supports, and does not replace, the customer&#39;s requirements" in built_binary.html
     assert not built_ordinal.study.safety_related
     assert "does not replace" not in built_ordinal.html
 
