@@ -679,7 +679,8 @@ class _Records:
     row: np.ndarray  # int64 table row (for messages)
     col: np.ndarray  # int64 table column of the rating
     item_names: list[str]
-    label: np.ndarray | None = None  # int64 index into the item column's uniques, when coded
+    label: np.ndarray | None = None  # int64 index into the label column's uniques, when coded
+    label_col: int = 0  # the table column holding the coded labels
 
 
 def load_ratings(study: Study) -> Ratings:
@@ -717,7 +718,7 @@ def load_ratings(study: Study) -> Ratings:
             what = f"item {item!r}, rater {rater}, trial {recs.trial[i] + 1}"
             first_line = int(table.lines[recs.row[first]])
             if recs.label is not None:
-                label = table.columns[0].uniques[recs.label[i]] if recs.label[i] >= 0 else "?"
+                label = table.columns[recs.label_col].uniques[recs.label[i]]
                 msg = f"label {label!r} used twice by rater {rater} ({what}); also on line {first_line}"
             else:
                 msg = f"second rating for {what}; first on line {first_line}"
@@ -941,6 +942,7 @@ def _long_records(
         col=np.full(n, rating_col, dtype=np.int64),
         item_names=names,
         label=label,
+        label_col=cols["item"],
     )
     return recs, cols.get("reference")
 
