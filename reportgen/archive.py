@@ -305,6 +305,12 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
                 raise InputError.single(p, f"{ENTRY_NAME} is reserved for the archive")
             files[rel] = sha256_file(p)
     _check_manifest(path, files)
+    html = path / f"{study_id}-rev{revision}.html"
+    if html.is_file() and '<body class="draft"' in html.read_text(encoding="utf-8", errors="replace")[:20000]:
+        raise InputError.single(
+            html, "this is a draft (built with --replace); drafts are not archived",
+            hint="raise study.revision in the study definition and build again",
+        )
     pdf_name = f"{study_id}-rev{revision}.pdf"
     pdf = path / pdf_name
     if not pdf.is_file():
@@ -404,8 +410,6 @@ def certification_summary(results: dict[str, Any], facts: dict[str, Any]) -> dic
     Returns ``{rater id: {name, outcome, assessed_on, certified_on, valid_until,
     due_window_days}}``; empty when the study has no certification rules.
     """
-    from .verdict import DEFAULT_DUE_WINDOW_DAYS, DEFAULT_VALID_MONTHS, valid_until
-
     cert = results.get("certification")
     if not isinstance(cert, dict):
         return {}
@@ -414,9 +418,9 @@ def certification_summary(results: dict[str, Any], facts: dict[str, Any]) -> dic
         return {}
     names: dict[str, str] = facts.get("raters") or {}
     study_date = cert.get("study_date") or facts.get("date")
-    months = cert.get("valid_months") if isinstance(cert.get("valid_months"), int) else DEFAULT_VALID_MONTHS
+    months = cert.get("valid_months") if isinstance(cert.get("valid_months"), int) else 12  # verdict's default
     window = cert.get("due_window_days")
-    window = window if isinstance(window, int) else DEFAULT_DUE_WINDOW_DAYS
+    window = window if isinstance(window, int) else 30  # verdict.DEFAULT_DUE_WINDOW_DAYS
     out: dict[str, Any] = {}
     for v in inspectors:
         if not isinstance(v, dict) or v.get("rater") is None:
@@ -428,6 +432,8 @@ def certification_summary(results: dict[str, Any], facts: dict[str, Any]) -> dic
             certified_on = study_date
         until = v.get("valid_until") if outcome == "certified" else None
         if outcome == "certified" and not until and certified_on:
+            from .verdict import valid_until  # imports numpy: only when the verdict left it out
+
             with contextlib.suppress(ValueError):
                 until = valid_until(dt.date.fromisoformat(str(certified_on)), months).isoformat()
         out[rid] = {

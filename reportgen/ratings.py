@@ -13,11 +13,13 @@ Layouts (documented in the README, "Ratings files"):
 Reading is exact: codes, ids and items are compared as text after trimming spaces (``007``
 stays ``007``), and every problem names the file, the physical line (or cell) and the column.
 
-Speed: a regular CSV without quotes is parsed by pandas' C reader (``dtype=str``, no NA
-guessing, blank lines kept so that record *n* is physical line *n*), every column is
-factorised once, and all checks run on the integer codes with numpy.  Files with quotes,
-ragged rows or odd line ends go through the stdlib ``csv`` reader, which reports the exact
-line of each record.  pandas is imported inside the functions only.
+Speed: a regular CSV over ``SMALL_BYTES`` (same number of delimiters on every non-blank line,
+well-formed quotes without line breaks inside, no bare carriage returns) is parsed by pandas' C reader into categorical
+columns (no NA guessing, blank lines kept so that record *n* is physical line *n*).  Every
+column is factorised once, trimmed per distinct value, and all checks run on the integer codes
+with numpy; there is no Python loop per row.  Small files, and files with quotes, ragged rows or
+odd line ends or quoted line breaks, go through the stdlib ``csv`` reader, which reports the exact physical line of
+each record.  pandas is imported inside the functions only, and not at all for small files.
 """
 
 from __future__ import annotations
@@ -128,8 +130,13 @@ class Table:
 
 
 def _factorize(values: Any) -> tuple[np.ndarray, list[str]]:
-    """Codes and trimmed distinct texts, in order of first appearance."""
-    if len(values) > SMALL_ROWS:
+    """Codes and trimmed distinct texts, in order of first appearance.
+
+    ``values`` is a sequence of texts, or a pair ``(codes, texts)`` already factorised.
+    """
+    if isinstance(values, tuple):
+        codes, raw = values
+    elif len(values) > SMALL_ROWS:
         import pandas as pd
 
         codes, uniques = pd.factorize(values)
@@ -236,7 +243,7 @@ def read_table(
         delimiter = max(DELIMITERS, key=lambda d: counts[d]) if any(counts.values()) else ","
     body = text[pos:]
     parsed = None
-    if size > SMALL_BYTES and '"' not in body:
+    if size > SMALL_BYTES:
         data = None
         if encoding in ("utf-8", "utf-8-sig"):  # the file's own bytes, without re-encoding
             data = raw[len(text[:pos].encode("utf-8")) + (3 if encoding == "utf-8-sig" else 0) :]
@@ -259,8 +266,9 @@ def _parse_fast(
     """pandas C reader for regular files; None when the file needs the careful reader.
 
     ``data`` is ``body`` encoded as UTF-8 when the caller has it already.  Regular means: no
-    bare carriage returns and the same number of delimiters on every non-empty line, so that
-    record *n* is physical line *n* and no row is short or long.
+    bare carriage returns, well-formed quotes with no line break inside, and the same number of
+    delimiters outside quotes on every non-empty line, so that record *n* is physical line *n*
+    and no row is short or long.
     """
     import pandas as pd
 
@@ -279,37 +287,74 @@ def _parse_fast(
         one = np.flatnonzero(lengths == 1)
         lengths[one[arr[starts[one]] == 13]] = 0  # a line holding only "\r" is blank
     dpos = np.flatnonzero(arr == ord(delimiter))
+    qpos = np.flatnonzero(arr == 34)
+    if len(qpos):
+        # Quoted fields: well formed (every quote at a field edge or doubled inside), and no line
+        # break inside quotes, or else the careful reader takes over.  The parity of the quotes
+        # before a position tells whether it lies inside a quoted field.
+        if len(qpos) % 2 or (np.searchsorted(qpos, nl) % 2).any():
+            return None
+        d = ord(delimiter)
+        prev = np.where(qpos > 0, arr[np.maximum(qpos - 1, 0)], 10)
+        after = np.where(qpos + 1 < len(arr), arr[np.minimum(qpos + 1, len(arr) - 1)], 10)
+        opens = (prev == d) | (prev == 10) | (prev == 34)
+        closes = (after == d) | (after == 10) | (after == 13) | (after == 34)
+        if not np.where(np.arange(len(qpos)) % 2 == 0, opens, closes).all():
+            return None
+        dpos = dpos[np.searchsorted(qpos, dpos) % 2 == 0]
     per_line = np.diff(np.searchsorted(dpos, ends), prepend=0)  # delimiters on each line
     expected = per_line[0]
     regular = (per_line == expected) | (lengths == 0)
     if not regular.all():
         return None
-    header = body[: body.find("\n")] if "\n" in body else body
-    header = header.rstrip("\r")
+    first = body[: body.find("\n")] if "\n" in body else body
+    header = next(csv.reader([first.rstrip("\r")], delimiter=delimiter))
     if n_lines == 1:
         return (
-            header.split(delimiter),
+            header,
             [np.zeros(0, dtype=object) for _ in range(expected + 1)],
             np.zeros(0, np.int64),
         )
-    frame = pd.read_csv(
+    try:
+        frame = _read_regular(pd, data, delimiter, int(expected) + 1)
+    except (pd.errors.ParserError, ValueError):
+        return None
+    if len(frame) != n_lines - 1 or frame.shape[1] != expected + 1:
+        return None
+    cols = [_first_appearance(frame[j].cat) for j in range(frame.shape[1])]
+    return header, cols, np.arange(1, n_lines, dtype=np.int64)
+
+
+def _read_regular(pd: Any, data: bytes, delimiter: str, n_columns: int) -> Any:
+    return pd.read_csv(
         io.BytesIO(data),
         sep=delimiter,
         header=None,
+        names=list(range(n_columns)),
         skiprows=1,
-        dtype=str,
+        # categorical columns: the C reader keeps one text per distinct value (always as text)
+        dtype="category",
         keep_default_na=False,
         na_filter=False,
         skip_blank_lines=False,
         engine="c",
         encoding="utf-8",
-        quoting=csv.QUOTE_NONE,
+        quotechar='"',
+        doublequote=True,
         low_memory=False,
     )
-    if len(frame) != n_lines - 1 or frame.shape[1] != expected + 1:
-        return None
-    cols = [frame[j].to_numpy(dtype=object, copy=False) for j in range(frame.shape[1])]
-    return header.split(delimiter), cols, np.arange(1, n_lines, dtype=np.int64)
+
+
+def _first_appearance(cat: Any) -> tuple[np.ndarray, list[str]]:
+    """Codes and texts of a pandas categorical, renumbered in order of first appearance."""
+    import pandas as pd
+
+    codes = np.asarray(cat.codes, dtype=np.int64)
+    texts = [str(c) for c in cat.categories]
+    order = np.asarray(pd.unique(codes), dtype=np.int64)
+    renumber = np.empty(len(texts), dtype=np.int64)
+    renumber[order] = np.arange(len(order))
+    return renumber[codes], [texts[k] for k in order]
 
 
 def _parse_stdlib(
@@ -577,6 +622,17 @@ class _Problems:
             self.kinds[kind] = self.kinds.get(kind, 0) + n
 
     def raise_if_any(self) -> None:
+        # file by file (in the order first met), lines in order, file-wide problems last
+        files: dict[str, int] = {}
+        for p in self.collector.items:
+            files.setdefault(p.location.path, len(files))
+        self.collector.items.sort(
+            key=lambda p: (
+                files[p.location.path],
+                p.location.line is None,
+                p.location.line or 0,
+            )
+        )
         for kind, n in self.kinds.items():
             if n > PER_KIND:
                 loc = self.last[kind]
@@ -842,7 +898,7 @@ def _detect_layout(table: Table, study: Study, keyed: bool) -> str:
                     None,
                     None,
                     f"no header line: the first line must name the columns, found {found!r}",
-                    "long layout: item,rater,trial,rating; wide layout: item,R1/1,R1/2,… (see the README, Ratings files)",
+                    "long layout: item,rater,trial,rating; wide layout: item,R1/1,R1/2,…; separated by commas, semicolons or tabs (see the README, Ratings files)",
                 )
             ]
         )
@@ -924,7 +980,6 @@ def _long_records(
         else None,
         blank_ok=study.missing == "allow",
     )
-    item_col = table.columns[cols["item"]]
     label = None
     if key is not None:
         item, trial, label, names = _decode_labels(
@@ -932,7 +987,6 @@ def _long_records(
         )
     else:
         item, names = _items(table, cols["item"], problems)
-        del item_col
     recs = _Records(
         item=item,
         rater=rater,

@@ -112,12 +112,11 @@ def read_attachments(pdf: str | Path) -> dict[str, bytes]:
         raise InputError.single(path, f"cannot be read as a PDF: {exc}") from None
 
 
-def _read_pdf(path: Path) -> tuple[bytes, dict[str, bytes], str, dict[str, str]]:
-    """Bytes, attachments, page text and metadata of the PDF."""
+def _read_pdf(path: Path) -> tuple[bytes, dict[str, bytes], str, dict[str, str], str | None]:
+    """Bytes, attachments, page text, metadata of the PDF, and why it could not be read (or None)."""
     import io
 
     import pypdf
-    from pypdf.errors import PdfReadError
 
     if not path.is_file():
         raise InputError.single(path, "the report PDF does not exist")
@@ -129,9 +128,9 @@ def _read_pdf(path: Path) -> tuple[bytes, dict[str, bytes], str, dict[str, str]]
         attachments = {str(n): bytes(d[0]) for n, d in reader.attachments.items() if d}
         text = "\n".join(page.extract_text() or "" for page in reader.pages)
         meta = {str(k): str(v) for k, v in (reader.metadata or {}).items()}
-    except (PdfReadError, ValueError, KeyError, TypeError, AttributeError) as exc:
-        raise InputError.single(path, f"cannot be read as a PDF: {type(exc).__name__}: {exc}") from None
-    return data, attachments, text, meta
+    except Exception as exc:  # noqa: BLE001 - pypdf raises many types on a damaged file
+        return data, {}, "", {}, f"{type(exc).__name__}: {exc}"
+    return data, attachments, text, meta, None
 
 
 def printed_hashes(text: str) -> list[tuple[int, int, str]]:
@@ -352,7 +351,7 @@ def verify_report(
     path = Path(pdf)
     say = progress or (lambda _m: None)
     v = Verification(path)
-    data, attachments, text, meta = _read_pdf(path)
+    data, attachments, text, meta, damage = _read_pdf(path)
     flat, squashed = _flat(text), _squash(text)
     report_id, report_rev = _identity_from_report(meta, flat)
     v.study_id, v.revision = report_id, report_rev
@@ -373,6 +372,10 @@ def verify_report(
     else:
         v.add("signature", not trust, "none: the report is not signed" + (" but --trust was given" if trust else ""))
 
+    if damage is not None:
+        v.add("readable", False, f"the PDF is damaged and cannot be read: {damage}")
+        return _done(v, t0)
+
     # 2. attachments
     study_names = [n for n in attachments if n.lower().endswith((".yaml", ".yml"))]
     if not attachments:
@@ -388,7 +391,6 @@ def verify_report(
     if len(study_names) != 1:
         missing.append("the study definition (.yaml)" if not study_names else "a single study definition")
     hashes = printed_hashes(text)
-    listed = {h for _s, _e, h in hashes}
     input_names = sorted(n for n in attachments if n != "results.json")
     if missing:
         v.add("attachments", False, "attachments stripped: " + ", ".join(missing) + " not attached",

@@ -161,11 +161,13 @@ _CACHE: dict[str, Path] = {}
 
 
 def built_report(tmp_path_factory, name: str) -> Path:  # type: ignore[no-untyped-def]
-    """A built report PDF, once per test session: "a" = LUG-CHECK rev1, "b" = LUG-AUDIT rev1 (other data)."""
+    """A built report PDF, once per test session: "a" = LUG-CHECK rev1, "b" = LUG-AUDIT rev1 (other data), "c" = LUG-CHECK rev2."""
     if name not in _CACHE:
         base = tmp_path_factory.mktemp(f"built-{name}")
         if name == "a":
             study = study_files(base / "study")
+        elif name == "c":  # the requalification a year later: L3 now misses one more defect
+            study = study_files(base / "study", "LUG-CHECK", 2, date="2027-11-10", flip=1)
         else:
             study = study_files(base / "study", "LUG-AUDIT", 1, date="2026-11-18", flip=3)
         rev = build(study, base / "output")

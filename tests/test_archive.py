@@ -248,3 +248,10 @@ def test_same_revision_archived_twice_at_once_one_wins(tmp_path: Path) -> None:
     assert sorted(p.returncode for p in procs) == [0, 5], outs
     assert _rows(root) == [("SEAL-CHECK", 1)]
     assert [p.name for p in (root / "SEAL-CHECK").iterdir()] == ["rev1"]
+
+
+def test_drafts_are_not_archived(tmp_path: Path) -> None:
+    rev = make_revision(tmp_path / "output")
+    (rev / "SEAL-CHECK-rev1.html").write_text('<html><body class="draft"><p>DRAFT</p></body></html>')
+    with pytest.raises(InputError, match="drafts are not archived"):
+        archive_revision(rev, archive_dir=tmp_path / "archive")

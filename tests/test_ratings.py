@@ -284,7 +284,7 @@ def test_fast_and_careful_readers_agree(tmp_path: Path, monkeypatch: pytest.Monk
 
     monkeypatch.setattr(ratings_module, "_parse_fast", spy)
     a, b = read_table(tmp_path / "a.csv"), read_table(tmp_path / "b.csv")
-    assert used == [True]  # the quoted file never reaches the fast path
+    assert used == [True, True]  # well-formed quotes without line breaks stay on the fast path
     assert a.lines.tolist() == b.lines.tolist() == list(range(2, 2002))
     for ca, cb in zip(a.columns, b.columns, strict=True):
         assert ca.values().tolist() == cb.values().tolist()
@@ -795,7 +795,12 @@ def test_unknown_extra_column_is_ignored_with_a_note(make_study) -> None:
 
 
 @pytest.mark.slow
-def test_large_file_fast_path(tmp_path: Path) -> None:
+def test_large_file_fast_path(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(ratings_module, "SMALL_BYTES", 0)
+    monkeypatch.setattr(ratings_module, "SMALL_ROWS", 0)
+    used: list[bool] = []
+    real = ratings_module._parse_fast
+    monkeypatch.setattr(ratings_module, "_parse_fast", lambda *a: used.append(True) or real(*a))
     rng = np.random.default_rng(11)
     n_items, n_raters = 5000, 20
     codes = rng.integers(0, 3, size=(n_items, n_raters))
@@ -814,6 +819,7 @@ def test_large_file_fast_path(tmp_path: Path) -> None:
     want = np.where(keep, codes, MISSING).astype(np.int8)
     seen = np.flatnonzero(keep.any(axis=1))
     np.testing.assert_array_equal(r.codes[:, :, 0], want[seen])
+    assert r.items[:2] == ("I00000", "I00001") and used == [True]
 
 
 def test_key_needs_long_layout(make_study) -> None:
@@ -831,4 +837,85 @@ def test_key_trial_must_agree(make_study) -> None:
     )
     assert (
         "ratings.csv:2: error: trial: trial 2 does not match the key: label 'A1' is trial 1" in msg
+    )
+
+
+def test_label_column_anywhere(make_study) -> None:
+    text = "rater,rating,label\nR1,P,A1\nR1,S,A1\n"
+    key = "label,item,trial\nA1,I01,1\n"
+    msg = messages(
+        make_study(
+            key="key.csv", reference=None, trials=1, ratings_text=text, files={"key.csv": key}
+        )
+    )
+    assert (
+        "ratings.csv:3: error: rating: label 'A1' used twice by rater R1" in msg
+        and "also on line 2" in msg
+    )
+
+
+def test_fast_path_quoted_delimiters_and_escapes(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    text = 'item,rater,note\n"A,1",R1,"say ""hi"""\nB,R2,""\n"C ""x""",R3,plain\n'
+    (tmp_path / "t.csv").write_text(text)
+    careful = read_table(tmp_path / "t.csv")
+    monkeypatch.setattr(ratings_module, "SMALL_BYTES", 0)
+    monkeypatch.setattr(ratings_module, "SMALL_ROWS", 0)
+    used: list[bool] = []
+    real = ratings_module._parse_fast
+    monkeypatch.setattr(
+        ratings_module, "_parse_fast", lambda *a: used.append(real(*a) is not None) or real(*a)
+    )
+    fast = read_table(tmp_path / "t.csv")
+    assert used == [True]
+    for t in (careful, fast):
+        assert t.lines.tolist() == [2, 3, 4]
+        assert [c.values().tolist() for c in t.columns] == [
+            ["A,1", "B", 'C "x"'],
+            ["R1", "R2", "R3"],
+            ['say "hi"', "", "plain"],
+        ]
+
+
+@pytest.mark.parametrize("bad", ['"A"x,R1,n\n', 'A,R1,"open\n', 'A, "R1",n\n'])
+def test_fast_path_leaves_odd_quotes_to_the_careful_reader(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, bad: str
+) -> None:
+    monkeypatch.setattr(ratings_module, "SMALL_BYTES", 0)
+    monkeypatch.setattr(ratings_module, "SMALL_ROWS", 0)
+    data = ("item,rater,note\nB,R2,x\n" + bad).encode()
+    assert ratings_module._parse_fast(data.decode(), ",", data) is None
+
+
+def test_xlsx_unpacked_size_cap(
+    make_study, monkeypatch: pytest.MonkeyPatch, tmp_path: Path
+) -> None:
+    folder = tmp_path / "cap"
+    folder.mkdir()
+    write_xlsx(
+        folder / "r.xlsx", {"S": [["item", "rater", "trial", "rating"], *[list(r) for r in ROWS]]}
+    )
+    monkeypatch.setattr(ratings_module, "MAX_XLSX_UNZIPPED", 1000)
+    msg = messages(make_study(folder, ratings="r.xlsx"))
+    assert "r.xlsx: error: the workbook unpacks to" in msg and "the limit is 1,000" in msg
+
+
+def test_xlsx_needs_defusedxml(make_study, monkeypatch: pytest.MonkeyPatch, tmp_path: Path) -> None:
+    import openpyxl
+
+    folder = tmp_path / "dx"
+    folder.mkdir()
+    write_xlsx(folder / "r.xlsx", {"S": [["item", "rater", "trial", "rating"]]})
+    monkeypatch.setattr(openpyxl, "DEFUSEDXML", False)
+    assert "refusing to open .xlsx files without the defusedxml package" in messages(
+        make_study(folder, ratings="r.xlsx")
+    )
+
+
+def test_unknown_separator_is_explained(make_study) -> None:
+    msg = messages(make_study(ratings_text=long_csv(ROWS, sep="|")))
+    assert (
+        "ratings.csv:1: error: no header line" in msg
+        and "separated by commas, semicolons or tabs" in msg
     )

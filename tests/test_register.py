@@ -161,3 +161,57 @@ def test_html_escapes_names(tmp_path: Path) -> None:
     )
     html = to_html(build_register(list_entries(root), as_of=D("2026-02-01")))
     assert "<script>x" not in html and "&lt;script&gt;x&lt;/script&gt;" in html
+
+
+@pytest.mark.slow
+@pytest.mark.render
+@pytest.mark.filterwarnings("ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning")
+def test_two_built_revisions_history_register_and_verify(tmp_path_factory: pytest.TempPathFactory, tmp_path: Path) -> None:
+    """Real builds of an invented study: archive rev1 and rev2, then history, register and verify."""
+    from _built import built_report
+
+    from reportgen.history import load_history
+    from reportgen.verify import verify_report
+
+    root = tmp_path / "archive"
+    rev1 = built_report(tmp_path_factory, "a").parent
+    rev2 = built_report(tmp_path_factory, "c").parent
+    e1 = archive_revision(rev1, archive_dir=root)
+    assert (e1.study_id, e1.revision, e1.study_date, e1.characteristic, e1.station) == (
+        "LUG-CHECK", 1, "2026-11-16", "Lug crimp", "Harness cell 1"
+    )
+    # the figures kept are the built ones, with their intervals
+    built = __import__("json").loads((rev1 / "results.json").read_text())
+    assert e1.figures["panel"]["reproducibility.fleiss_kappa"]["ci_low"] == built["reproducibility"]["fleiss_kappa"]["ci_low"]
+    assert e1.verdict == built["verdict"]["outcome"]
+
+    def register_on(day: str) -> dict[str, tuple[str, str | None]]:
+        reg = build_register(list_entries(root), as_of=D(day))
+        return {ln.inspector: (ln.status, ln.valid_until) for ln in reg.lines}
+
+    # certified on 2026-11-16 for 12 months: valid until 2027-11-30; 30 days' due window
+    assert register_on("2027-10-01") == {n: ("valid", "2027-11-30") for n in ("Marta Quist", "Oren Falk", "Priya Nand")}
+    assert register_on("2027-11-15") == {n: ("due", "2027-11-30") for n in ("Marta Quist", "Oren Falk", "Priya Nand")}
+    assert register_on("2027-12-01") == {n: ("expired", "2027-11-30") for n in ("Marta Quist", "Oren Falk", "Priya Nand")}
+
+    archive_revision(rev2, archive_dir=root)  # requalified on 2027-11-10; Priya Nand falls short
+    assert register_on("2027-12-01") == {
+        "Marta Quist": ("valid", "2028-11-30"),
+        "Oren Falk": ("valid", "2028-11-30"),
+        "Priya Nand": ("not certified", None),
+    }
+    runner = CliRunner()
+    r = runner.invoke(cli, ["register", "--archive", str(root), "--as-of", "2028-12-01", "--fail-on", "expired"])
+    assert isinstance(r.exception, CheckFailed)
+    assert str(r.exception) == (
+        "2 certification(s) expired: Marta Quist (Lug crimp): expired; Oren Falk (Lug crimp): expired"
+    )
+
+    entries, [series] = load_history(root)
+    assert [p.label for p in series.points] == ["LUG-CHECK rev1", "LUG-CHECK rev2"]
+    assert [p.superseded_by for p in series.points] == [2, None]
+    assert not any(p.item_set_changed for p in series.points)  # the same 12 lugs
+    assert [r["estimate"] for r in series.inspector("Priya Nand", "accuracy.effectiveness")] == [22 / 24, 21 / 24]
+
+    # the archived copy is still a genuine report
+    assert verify_report(root / "LUG-CHECK" / "rev2" / "LUG-CHECK-rev2.pdf").ok

@@ -10,7 +10,7 @@ ink            #1d2733    text, axes, estimate markers
 slate          #3f6e9a    interval bars, second series
 ochre          #c98a1b    reference markers, highlighted series
 mist           #dfe7ef    "meets" band of an acceptance criterion
-sand           #f3ead7    "marginal" band (also hatched with dots)
+sand           #f3ead7    "marginal" band (also hatched with horizontal lines)
 paper          #ffffff    "short" band (left white, hatched with fine lines)
 heat ramp      #f7f9fb → #16324f   counts in the confusion maps (single hue, lightness only)
 =============  =========  ==================================================================
@@ -41,7 +41,7 @@ HEAT_LOW = "#f7f9fb"
 HEAT_HIGH = "#16324f"
 #: nominal category fills, in order: lightness differs step by step, hatches tell them apart too
 NOMINAL_FILLS = ("#e8eef4", "#9fb8cf", "#c98a1b", "#3f6e9a", "#f3ead7", "#1d2733")
-NOMINAL_HATCH = ("", "//", "..", "", "xx", "")
+NOMINAL_HATCH = ("", "//", "--", "", "xx", "")
 
 PALETTE = {
     "ink": INK,
@@ -163,14 +163,14 @@ def _draw_bands(ax: Any, band: Band | None, lo: float, hi: float) -> None:
     if band.better == "lower":
         ax.axvspan(lo, p, color=MIST, lw=0, zorder=0)
         if m is not None:
-            ax.axvspan(p, m, facecolor=SAND, edgecolor="#b9a67a", hatch="..", lw=0, zorder=0)
+            ax.axvspan(p, m, facecolor=SAND, edgecolor="#b9a67a", hatch="---", lw=0, zorder=0)
             ax.axvspan(m, hi, facecolor=PAPER, edgecolor="#c4c9cf", hatch="///", lw=0, zorder=0)
         else:
             ax.axvspan(p, hi, facecolor=PAPER, edgecolor="#c4c9cf", hatch="///", lw=0, zorder=0)
     else:
         ax.axvspan(p, hi, color=MIST, lw=0, zorder=0)
         if m is not None:
-            ax.axvspan(m, p, facecolor=SAND, edgecolor="#b9a67a", hatch="..", lw=0, zorder=0)
+            ax.axvspan(m, p, facecolor=SAND, edgecolor="#b9a67a", hatch="---", lw=0, zorder=0)
             ax.axvspan(lo, m, facecolor=PAPER, edgecolor="#c4c9cf", hatch="///", lw=0, zorder=0)
         else:
             ax.axvspan(lo, p, facecolor=PAPER, edgecolor="#c4c9cf", hatch="///", lw=0, zorder=0)
@@ -295,7 +295,7 @@ def steps_apart(
     plt = _plt()
     _style(plt, name)
     fills = (SLATE, OCHRE, MIST, INK, SAND, "#9fb8cf")
-    hatches = ("", "//", "..", "", "xx", "\\\\")
+    hatches = ("", "//", "--", "", "xx", "\\\\")
     n = max(len(series), 1)
     width = 0.8 / n
     fig, ax = plt.subplots(figsize=(6.4, 2.6))
@@ -486,7 +486,7 @@ def report_charts(study: Any, ratings: Any, results: dict[str, Any], verdict: di
             panels,
             alt="For each rater, the estimate (diamond) and its interval (bar) of each figure, "
             "drawn over the acceptance bands of the study's criteria where a criterion applies.",
-            note="Shaded plain: meets; dotted: marginal; hatched: short. A bar crossing a band edge "
+            note="Plain shading: meets; horizontal lines: marginal; diagonal lines: short. A bar crossing a band edge "
             "means the data cannot yet tell which side the rater is on.",
         )
 

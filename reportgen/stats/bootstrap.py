@@ -37,7 +37,6 @@ __all__ = ["BootstrapResult", "bootstrap", "bootstrap_many", "draw_pattern_count
 
 _METHODS = {"bca": "bootstrap BCa", "percentile": "bootstrap percentile"}
 _CHUNK_CELLS = 1 << 21  # replicate × pattern cells per chunk (about 16 MB as float64)
-_TAIL_MULTIPLICITY = 8  # patterns drawn fewer times than this are sampled item by item
 
 
 @dataclass(frozen=True)
@@ -59,35 +58,107 @@ class BootstrapResult:
 def draw_pattern_counts(
     rng: np.random.Generator, multiplicity: np.ndarray, resamples: int
 ) -> np.ndarray:
-    """Multinomial counts ``(resamples, P)`` of ``n = sum(multiplicity)`` item draws over patterns.
+    """Multinomial counts ``(resamples, P)`` of ``n = sum(multiplicity)`` item draws over patterns
+    (as float64, ready for the matrix product with the features).
 
     Equivalent in distribution to drawing ``n`` items with replacement and counting the pattern
-    of each.  Frequent patterns are drawn with conditional binomials (``rng.multinomial``); the
-    many rare patterns are drawn item by item (uniform integers), which is exact too: given how
-    many draws land among the rare patterns' items, they are uniform over those items.
+    of each.  See :class:`_PatternSampler` for how it is done quickly and exactly.
     """
-    mult = np.asarray(multiplicity, dtype=np.int64)
-    n = int(mult.sum())
-    p_count = mult.shape[0]
-    if p_count == 0 or resamples == 0:
-        return np.zeros((resamples, p_count), dtype=np.int64)
-    rare = mult < _TAIL_MULTIPLICITY
-    n_rare_items = int(mult[rare].sum())
-    if p_count <= 64 or n_rare_items == 0 or rare.sum() < 32:
-        return rng.multinomial(n, mult / n, size=resamples)
-    head = np.flatnonzero(~rare)
-    tail = np.flatnonzero(rare)
-    probs = np.append(mult[head], n_rare_items) / n
-    hc = rng.multinomial(n, probs, size=resamples)
-    out = np.zeros((resamples, p_count), dtype=np.int64)
-    out[:, head] = hc[:, :-1]
-    n_tail = hc[:, -1]
-    draws = rng.integers(0, n_rare_items, size=int(n_tail.sum()))
-    item_pattern = np.repeat(np.arange(tail.shape[0]), mult[tail])
-    rep = np.repeat(np.arange(resamples, dtype=np.int64) * tail.shape[0], n_tail)
-    tc = np.bincount(rep + item_pattern[draws], minlength=resamples * tail.shape[0])
-    out[:, tail] = tc.reshape(resamples, tail.shape[0])
-    return out
+    return _PatternSampler(np.asarray(multiplicity, dtype=np.int64)).draw(rng, resamples)
+
+
+class _PatternSampler:
+    """Exact multinomial counts over patterns, fast when there are thousands of patterns.
+
+    Small problems use ``Generator.multinomial`` (conditional binomials).  Large ones are
+    *Poissonised*: each pattern gets an independent Poisson(``t m_p``) count with
+    ``t = 1 - 2 / sqrt(n)``; given their total ``N <= n`` these counts are Multinomial(N, m/n),
+    so adding ``n - N`` further draws of single items (uniform over the ``n`` items) gives exactly
+    Multinomial(n, m/n).  Replicates with ``N > n`` (about 2 %) are drawn again, which does not
+    change the conditional law.  The Poisson counts come from inverting the CDF with a
+    16384-entry lookup table per multiplicity value (one 14-bit random integer per count; the few
+    table cells that straddle a CDF step are resolved exactly with a fresh uniform), or from
+    ``Generator.poisson`` for the few very frequent patterns.
+    """
+
+    _BITS = 14
+    _TABLE_MAX_MULT = 64
+
+    def __init__(self, mult: np.ndarray) -> None:
+        # Work internally with the patterns sorted by multiplicity, so that each table group is
+        # a contiguous block of columns; ``draw`` returns columns in the caller's order.
+        self.order = np.argsort(mult, kind="stable")
+        self.sorted_already = bool(np.all(self.order == np.arange(mult.shape[0])))
+        self.mult = mult
+        self.n = int(mult.sum())
+        self.p = mult.shape[0]
+        self.small = self.p <= 64 or self.n < 400
+        if self.small:
+            return
+        self.t = 1.0 - 2.0 / np.sqrt(self.n)
+        size = 1 << self._BITS
+        self.groups: list[tuple[slice, np.ndarray, np.ndarray, int]] = []
+        ms = mult[self.order]
+        values, starts, counts = np.unique(ms, return_index=True, return_counts=True)
+        for v, a, c in zip(values, starts, counts, strict=True):
+            if v > self._TABLE_MAX_MULT:
+                break
+            cols = slice(int(a), int(a + c))
+            cdf = self._poisson_cdf(self.t * float(v))
+            edges = np.arange(size + 1, dtype=np.float64) / size
+            x_lo = np.searchsorted(cdf, edges[:-1], side="right")
+            below_hi = np.searchsorted(cdf, edges[1:], side="left")
+            table = np.minimum(x_lo, cdf.shape[0] - 1).astype(np.float64)
+            table[below_hi > x_lo] = np.nan  # cell straddles a CDF step: resolve with a uniform
+            self.groups.append((cols, table, cdf, size))
+        first_big = int(np.searchsorted(ms, self._TABLE_MAX_MULT, side="right"))
+        self.big = slice(first_big, self.p)
+        self.big_lam = self.t * ms[first_big:].astype(np.float64)
+        self.item_pattern = np.repeat(np.arange(self.p, dtype=np.int64), ms)
+
+    @staticmethod
+    def _poisson_cdf(lam: float) -> np.ndarray:
+        top = int(np.ceil(lam + 14.0 * np.sqrt(lam) + 20.0))
+        k = np.arange(top + 1, dtype=np.float64)
+        log_fact = np.concatenate([[0.0], np.cumsum(np.log(np.arange(1, top + 1)))])
+        return np.cumsum(np.exp(k * np.log(lam) - lam - log_fact))
+
+    def _poissonised(self, rng: np.random.Generator, r: int) -> np.ndarray:
+        out = np.empty((r, self.p), dtype=np.float64)
+        for cols, table, cdf, size in self.groups:
+            b = rng.integers(0, size, size=(r, cols.stop - cols.start), dtype=np.uint16)
+            x = table[b]
+            amb = np.isnan(x)
+            if amb.any():
+                u = (b[amb] + rng.random(int(amb.sum()))) / size
+                x[amb] = np.minimum(np.searchsorted(cdf, u, side="right"), cdf.shape[0] - 1)
+            out[:, cols] = x
+        if self.big_lam.shape[0]:
+            out[:, self.big] = rng.poisson(self.big_lam, size=(r, self.big_lam.shape[0]))
+        return out
+
+    def draw(self, rng: np.random.Generator, r: int) -> np.ndarray:
+        if self.p == 0 or r == 0:
+            return np.zeros((r, self.p), dtype=np.float64)
+        if self.small:
+            return rng.multinomial(self.n, self.mult / self.n, size=r).astype(np.float64)
+        w = self._poissonised(rng, r)
+        total = w.sum(axis=1)
+        over = np.flatnonzero(total > self.n)
+        while over.shape[0]:
+            w[over] = self._poissonised(rng, over.shape[0])
+            total[over] = w[over].sum(axis=1)
+            over = over[total[over] > self.n]
+        short = (self.n - total).astype(np.int64)
+        draws = rng.integers(0, self.n, size=int(short.sum()))
+        rows = np.repeat(np.arange(r, dtype=np.int64) * self.p, short)
+        np.add.at(w.reshape(-1), rows + self.item_pattern[draws], 1.0)
+        return w if self.sorted_already else self.unsort(w)
+
+    def unsort(self, w: np.ndarray) -> np.ndarray:
+        out = np.empty_like(w)
+        out[:, self.order] = w
+        return out
 
 
 def _as_patterns(
@@ -114,10 +185,12 @@ def _replicate_sums(
     """``W @ F`` for all replicates, in chunks of replicates to bound memory."""
     out = np.empty((resamples, f.shape[1]), dtype=np.float64)
     step = max(1, min(resamples, _CHUNK_CELLS // max(1, f.shape[0])))
+    order = np.argsort(mult, kind="stable")
+    f, mult = f[order], mult[order]  # sums do not depend on the order of the patterns
+    sampler = _PatternSampler(mult)
     for start in range(0, resamples, step):
         stop = min(resamples, start + step)
-        w = draw_pattern_counts(rng, mult, stop - start)
-        out[start:stop] = w.astype(np.float64) @ f
+        out[start:stop] = sampler.draw(rng, stop - start) @ f
     return out
 
 

@@ -38,6 +38,7 @@ Wikipedia article "Fleiss' kappa" (kappa 0.210); statsmodels ``fleiss_kappa`` an
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -209,10 +210,11 @@ def fleiss_kappa(
     elif 1.0 - pe <= _TINY:
         why = "Fleiss' kappa is undefined: every rating is in one category, so chance agreement is 1."
 
+    sum_inv_pairs = float(w @ np.where(m >= 2, 1.0 / np.where(m >= 2, m * (m - 1), 1), 0.0))
     null_args = {
         "n_pairable": float(n_pairable),
         "n_rated": float(n_rated),
-        "sum_inv_pairs": float(w @ np.where(m >= 2, 1.0 / np.where(m >= 2, m * (m - 1), 1), 0.0)),
+        "sum_inv_pairs": sum_inv_pairs,
         "sum_inv_r_pairable": float(w @ np.where(m >= 2, 1.0 / np.maximum(m, 1), 0.0)),
         "n_single": float(n_single),
     }
@@ -222,7 +224,7 @@ def fleiss_kappa(
         "items_unrated": n_unrated,
         "ratings": n_ratings,
     }
-
+    level_notes = tuple(notes)
     zc = _normal_critical(level)
     if why is not None:
         overall = Estimate(
@@ -233,106 +235,113 @@ def fleiss_kappa(
             warnings=(*notes, why),
             extra={**extra_common, "p_o": _finite_or_none(pa), "p_e": _finite_or_none(pe)},
         )
-    else:
-        var0 = float(fnl_null_variance(pi, **null_args))
-        se0 = float(np.sqrt(var0)) if var0 > 0 else float("nan")
-        # Gwet's linearised variance over the rated items (patterns weighted by multiplicity).
-        keep = m >= 1
-        rr, ww, mm = rows[keep], w[keep], m[keep]
-        a_i = feats[keep, 1]
-        pe_i = (rr @ pi) / mm
-        kstar = (n_rated / n_pairable) * (a_i - pe * (mm >= 2)) / (1.0 - pe) - 2.0 * (
-            1.0 - kappa
-        ) * (pe_i - pe) / (1.0 - pe)
-        var = _weighted_var_of_mean(kstar, ww, kappa, n_rated)
-        overall = _estimate(
-            kappa, var, se0, zc, level, n_rated, all_alike, notes,
-            {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi.tolist()},
+        return FleissResult(
+            overall=overall,
+            by_category=_categories(kappa_j, pi, None, None, n_pairable, n_rated, zc, level,
+                                    level_notes, extra_common),
         )
 
-    by_cat = []
-    for j in range(k):
-        by_cat.append(
-            _category_estimate(
-                j, float(kappa_j[j]), rows, w, m, float(pi[j]) if n_rated else float("nan"),
-                n_pairable, n_rated, null_args, zc, level, notes, extra_common,
-            )
+    keep = m >= 1
+    rr, ww, mm = rows[keep], w[keep], m[keep]
+    pairable = mm >= 2
+    # Overall: Gwet's linearised variance over the rated items (patterns weighted).
+    var0 = float(fnl_null_variance(pi, **null_args))
+    a_i = feats[keep, 1]
+    pe_i = (rr @ pi) / mm
+    kstar = (n_rated / n_pairable) * (a_i - pe * pairable) / (1.0 - pe) - 2.0 * (1.0 - kappa) * (
+        pe_i - pe
+    ) / (1.0 - pe)
+    var = _weighted_var_of_mean(kstar, ww, kappa, n_rated)
+    overall = _estimate(
+        kappa, var, var0, zc, level, n_rated, all_alike, level_notes,
+        {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi.tolist()},
+    )
+    # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table.
+    with np.errstate(divide="ignore", invalid="ignore"):
+        qi = 1.0 - pi
+        var0_j = fnl_null_variance(np.stack([pi, qi], axis=-1), **null_args)
+        mcol = mm[:, None]
+        rest = mcol - rr
+        pairs = np.where(pairable, mm * (mm - 1.0), 1.0)[:, None]
+        a_ij = np.where(pairable[:, None], (rr * (rr - 1.0) + rest * (rest - 1.0)) / pairs, 0.0)
+        pe_j = pi * pi + qi * qi
+        pe_ij = (rr * pi + rest * qi) / mcol
+        kstar_j = (n_rated / n_pairable) * (a_ij - pe_j * pairable[:, None]) / (1.0 - pe_j) - (
+            2.0 * (1.0 - kappa_j) * (pe_ij - pe_j) / (1.0 - pe_j)
         )
-    return FleissResult(overall=overall, by_category=tuple(by_cat))
+        var_j = (ww @ (kstar_j - kappa_j) ** 2) / (n_rated * (n_rated - 1.0))
+    by_cat = _categories(kappa_j, pi, var_j, var0_j, n_pairable, n_rated, zc, level,
+                         level_notes, extra_common)
+    return FleissResult(overall=overall, by_category=by_cat)
+
+
+def _categories(
+    kappa_j: np.ndarray,
+    pi: np.ndarray,
+    var_j: np.ndarray | None,
+    var0_j: np.ndarray | None,
+    n_pairable: int,
+    n_rated: int,
+    zc: float,
+    level: float,
+    notes: tuple[str, ...],
+    extra_common: dict[str, object],
+) -> tuple[Estimate, ...]:
+    out = []
+    for j in range(kappa_j.shape[0]):
+        value = float(kappa_j[j])
+        pj = float(pi[j]) if n_rated else float("nan")
+        extra = {**extra_common, "category": j, "proportion": _finite_or_none(pj)}
+        if not np.isfinite(value) or var_j is None or var0_j is None:
+            if n_pairable == 0:
+                why = f"Fleiss' kappa for category {j} is undefined: no item has two or more ratings."
+            elif pj <= 0.0:
+                why = f"Fleiss' kappa for category {j} is undefined: no rating is in this category."
+            elif pj >= 1.0:
+                why = f"Fleiss' kappa for category {j} is undefined: every rating is in this category."
+            else:
+                why = f"Fleiss' kappa for category {j} is undefined."
+            out.append(Estimate(
+                estimate=None, items=n_rated, confidence_level=level,
+                warnings=(*notes, why), extra=extra,
+            ))
+            continue
+        out.append(_estimate(value, float(var_j[j]), float(var0_j[j]), zc, level, n_rated, None,
+                             notes, extra))
+    return tuple(out)
 
 
 def _estimate(
     value: float,
     var: float,
-    se0: float,
+    var0: float,
     zc: float,
     level: float,
     items: int,
     agreeing: int | None,
-    notes: list[str],
+    notes: tuple[str, ...],
     extra: dict[str, object],
 ) -> Estimate:
-    warnings = list(notes)
-    se = float(np.sqrt(var)) if np.isfinite(var) and var >= 0 else float("nan")
+    se0 = math.sqrt(var0) if math.isfinite(var0) and var0 > 0 else math.nan
+    se = math.sqrt(var) if math.isfinite(var) and var >= 0 else math.nan
     lo = hi = None
-    if np.isfinite(se):
+    warnings = notes
+    if se == se:
         lo, hi = value - zc * se, value + zc * se
     else:
-        warnings.append("No standard error: fewer than two rated items.")
-    z = value / se0 if np.isfinite(se0) and se0 > 0 else float("nan")
+        warnings = (*notes, "No standard error: fewer than two rated items.")
+    z = value / se0 if se0 > 0 else math.nan
     return Estimate(
         estimate=value,
-        se=_finite_or_none(se),
+        se=se if se == se else None,
         ci_low=lo,
         ci_high=hi,
         ci_method=_METHOD if lo is not None else None,
         confidence_level=level,
-        z=_finite_or_none(z),
-        p_value=_two_sided_p(z) if np.isfinite(z) else None,
+        z=z if z == z else None,
+        p_value=_two_sided_p(z) if z == z else None,
         items=items,
         agreeing=agreeing,
-        warnings=tuple(warnings),
-        extra={**extra, "se_null": _finite_or_none(se0), "p_value_sides": "two-sided"},
+        warnings=warnings,
+        extra={**extra, "se_null": se0 if se0 == se0 else None, "p_value_sides": "two-sided"},
     )
-
-
-def _category_estimate(
-    j: int,
-    value: float,
-    rows: np.ndarray,
-    w: np.ndarray,
-    m: np.ndarray,
-    pj: float,
-    n_pairable: int,
-    n_rated: int,
-    null_args: dict[str, float],
-    zc: float,
-    level: float,
-    notes: list[str],
-    extra_common: dict[str, object],
-) -> Estimate:
-    extra = {**extra_common, "category": j, "proportion": _finite_or_none(pj)}
-    if not np.isfinite(value):
-        if n_pairable == 0:
-            why = f"Fleiss' kappa for category {j} is undefined: no item has two or more ratings."
-        elif pj <= 0.0:
-            why = f"Fleiss' kappa for category {j} is undefined: no rating is in this category."
-        else:
-            why = f"Fleiss' kappa for category {j} is undefined: every rating is in this category."
-        return Estimate(
-            estimate=None, items=n_rated, confidence_level=level,
-            warnings=(*notes, why), extra=extra,
-        )
-    var0 = float(fnl_null_variance(np.array([pj, 1.0 - pj]), **null_args))
-    se0 = float(np.sqrt(var0)) if var0 > 0 else float("nan")
-    keep = m >= 1
-    c, ww, mm = rows[keep, j], w[keep], m[keep]
-    pairs = np.where(mm >= 2, mm * (mm - 1.0), 1.0)
-    a_i = np.where(mm >= 2, (c * (c - 1) + (mm - c) * (mm - c - 1)) / pairs, 0.0)
-    pe = pj * pj + (1 - pj) * (1 - pj)
-    pe_i = (c * pj + (mm - c) * (1 - pj)) / mm
-    kstar = (n_rated / n_pairable) * (a_i - pe * (mm >= 2)) / (1.0 - pe) - 2.0 * (
-        1.0 - value
-    ) * (pe_i - pe) / (1.0 - pe)
-    var = _weighted_var_of_mean(kstar, ww, value, n_rated)
-    return _estimate(value, var, se0, zc, level, n_rated, None, notes, extra)

@@ -63,7 +63,7 @@ def _weights_iv(weights: np.ndarray | str | None, k: int) -> np.ndarray:
     w = np.asarray(weights, dtype=np.float64)
     if w.shape != (k, k):
         raise ValueError(f"weights must have shape ({k}, {k}), got {w.shape}")
-    if not np.allclose(np.diag(w), 1.0) or np.any(w < 0) or np.any(w > 1):
+    if np.abs(np.diag(w) - 1.0).max() > 1e-12 or w.min() < 0 or w.max() > 1:
         raise ValueError("agreement weights must lie in 0..1 with 1 on the diagonal")
     return w
 
@@ -100,7 +100,11 @@ def gwet_ac_from_sums(sums: np.ndarray, *, weights: np.ndarray | str | None = No
     k = s.shape[-1] - 3
     if k < 1:
         raise ValueError("AC sums must have 3 + k columns")
-    w = _weights_iv(weights, k)
+    return _ac_from_sums(s, _weights_iv(weights, k))
+
+
+def _ac_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
+    k = w.shape[0]
     if k < 2:
         return np.full(s.shape[:-1], np.nan)
     e, a, u, pi_sum = s[..., 0], s[..., 1], s[..., 2], s[..., 3:]
@@ -124,9 +128,12 @@ def brennan_prediger_from_sums(
     sums: np.ndarray, n_categories: int, *, weights: np.ndarray | str | None = None
 ) -> np.ndarray:
     """Brennan–Prediger coefficient from sums of :func:`brennan_prediger_features`; batched."""
-    s = np.asarray(sums, dtype=np.float64)
     k = int(n_categories)
-    w = _weights_iv(weights, k)
+    return _bp_from_sums(np.asarray(sums, dtype=np.float64), _weights_iv(weights, k))
+
+
+def _bp_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
+    k = w.shape[0]
     pe = w.sum() / k**2
     e, a = s[..., 0], s[..., 1]
     if 1.0 - pe <= _TINY:
@@ -230,7 +237,7 @@ def gwet_ac(
     k = rows.shape[1]
     name = "Gwet's AC1" if weights is None else "Gwet's AC2"
     sums = mult @ feats
-    value = float(gwet_ac_from_sums(sums, weights=w))
+    value = float(_ac_from_sums(sums, w))
     n2, n_rated = sums[0], int(sums[2])
     pi = sums[3:] / n_rated if n_rated else np.full(k, np.nan)
     tw = float(w.sum())
@@ -275,7 +282,7 @@ def brennan_prediger(
     rows, mult, w, feats, m, notes, info = _common(counts, weights)
     k = rows.shape[1]
     sums = mult @ feats
-    value = float(brennan_prediger_from_sums(sums[:3], k, weights=w))
+    value = float(_bp_from_sums(sums[:3], w))
     n2, n_rated = sums[0], int(sums[2])
     pe = float(w.sum()) / k**2
     extra: dict[str, object] = {

@@ -31,11 +31,12 @@ from .proportion import _confidence_level_iv, normal_quantile
 from .results import Estimate
 
 
-def _int_codes(values: np.ndarray | list[int], name: str) -> np.ndarray:
+def _int_codes(values: np.ndarray | list[int], name: str, *, widen: bool = True) -> np.ndarray:
     arr = np.asarray(values)
     if arr.size and (arr.dtype.kind not in "iu" or arr.dtype.kind == "b"):
         raise TypeError(f"{name} must hold integer category codes (-1 = missing), got {arr.dtype}")
-    arr = arr.astype(np.int64, copy=False)
+    if widen or not arr.size:
+        arr = arr.astype(np.int64, copy=False)
     if arr.size and arr.min() < -1:
         raise ValueError(f"{name} holds negative codes other than -1 (missing)")
     return arr
@@ -64,7 +65,7 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
     Kendall's W–Spearman relation; textbook examples (see tests).
     """
     level = _confidence_level_iv(confidence_level)
-    c = _int_codes(codes, "codes")
+    c = _int_codes(codes, "codes", widen=False)  # small code dtypes kept; indices widened below
     if c.ndim != 2:
         raise ValueError(f"codes must be a 2-D array items × raters, got {c.ndim} dimension(s)")
     warnings: list[str] = []
@@ -96,10 +97,11 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
         )
 
     k = int(c.max()) + 1
-    counts = np.bincount((np.arange(m) * k + c).ravel(), minlength=m * k).reshape(m, k)
+    cell = np.arange(0, m * k, k, dtype=np.intp) + c  # rater j, category c -> j·k + c
+    counts = np.bincount(cell.ravel(), minlength=m * k).reshape(m, k)
     below = np.cumsum(counts, axis=1) - counts
     midrank = below + (counts + 1) / 2.0  # (m, k): mid-rank of category c for rater j
-    rank_sums = midrank[np.arange(m), c].sum(axis=1)  # R_i over raters, shape (n,)
+    rank_sums = midrank.ravel().take(cell).sum(axis=1)  # R_i over raters, shape (n,)
     dev = rank_sums - m * (n + 1) / 2.0
     s = float(dev @ dev)
     ties = float((counts.astype(np.float64) ** 3 - counts).sum())

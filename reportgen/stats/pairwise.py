@@ -27,8 +27,7 @@ pairwise kappas on random data (test-only cross-checks).
 
 from __future__ import annotations
 
-import functools
-from collections.abc import Iterator, Sequence
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -37,9 +36,6 @@ from .proportion import _confidence_level_iv
 from .results import Estimate
 
 # --------------------------------------------------------------------------- helpers
-
-
-_CHUNK_ITEMS = 1 << 16  # items per one-hot block (bounds transient memory on big studies)
 
 
 def _matrix_iv(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
@@ -64,61 +60,66 @@ def _pair_index(n_raters: int) -> tuple[np.ndarray, np.ndarray]:
     return g.astype(np.int64), h.astype(np.int64)
 
 
-def _onehot_blocks(codes: np.ndarray, k: int) -> Iterator[np.ndarray]:
-    """Blocks of the (items, raters, k) one-hot of ``codes``; a missing rating is all zero."""
-    cats = np.arange(k)  # int64: safe against small code dtypes
-    for start in range(0, codes.shape[0], _CHUNK_ITEMS):
-        yield codes[start : start + _CHUNK_ITEMS, :, None] == cats
+def _extended(codes: np.ndarray, k: int) -> np.ndarray:
+    """Codes as intp with missing (-1) moved to an extra category k (dropped after counting)."""
+    return np.where(codes < 0, k, codes).astype(np.intp, copy=False)
 
 
-def _gram_and_counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """(r·k, r·k) Gram matrix of the rater one-hots, and (n, k) ratings per category per item.
+_SMALL = 1 << 14  # ratings up to which one bincount beats the column-wise counting
 
-    Block (g, h) of the Gram matrix is the k×k table of raters g and h over the items both rated
-    (missing ratings have zero one-hot rows).  float32 products of 0/1 values are exact for
-    blocks below 2^24 items; blocks are summed in float64.
+
+def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """((n_items, k) ratings per category per item, (n_raters, k) per rater), int64 counts.
+
+    Small studies: one bincount each.  Large ones: a loop over raters × categories (never over
+    items) adding boolean columns into small-integer accumulators, which avoids building
+    index arrays of the size of the ratings.
     """
     n, r = codes.shape
-    if n <= _CHUNK_ITEMS:
-        block = codes[:, :, None] == np.arange(k)
-        x = block.reshape(n, r * k).astype(np.float32)
-        return (x.T @ x).astype(np.float64), block.sum(axis=1, dtype=np.float64)
-    gram = np.zeros((r * k, r * k))
-    counts = np.empty((n, k))
-    start = 0
-    for block in _onehot_blocks(codes, k):
-        x = block.reshape(block.shape[0], r * k).astype(np.float32)
-        gram += x.T @ x
-        counts[start : start + block.shape[0]] = block.sum(axis=1)
-        start += block.shape[0]
-    return gram, counts
+    if n * r <= _SMALL:
+        ext = _extended(codes, k)
+        k1 = k + 1
+        item_idx = ext + (np.arange(n, dtype=np.intp) * k1)[:, None]
+        items = np.bincount(item_idx.ravel(), minlength=n * k1).reshape(n, k1)[:, :k]
+        rater_idx = ext + (np.arange(r, dtype=np.intp) * k1)[None, :]
+        raters = np.bincount(rater_idx.ravel(), minlength=r * k1).reshape(r, k1)[:, :k]
+        return items, raters
+    by_rater = np.ascontiguousarray(codes.T)
+    acc = np.zeros((k, n), dtype=np.uint8 if r < 256 else np.int32)
+    raters = np.empty((r, k), dtype=np.int64)
+    for g in range(r):
+        column = by_rater[g]
+        for cat in range(k):
+            hit = column == cat
+            acc[cat] += hit
+            raters[g, cat] = np.count_nonzero(hit)
+    return acc.T.astype(np.int64), raters
 
 
-@functools.lru_cache(maxsize=32)
-def _pair_gather_index(r: int, k: int) -> np.ndarray:
-    """Flat indices into the (r·k, r·k) Gram matrix giving the (n_pairs, k, k) pair tables."""
-    g, h = _pair_index(r)
-    a = np.arange(k)
-    rows = g[:, None, None] * k + a[None, :, None]
-    cols = h[:, None, None] * k + a[None, None, :]
-    index = rows * (r * k) + cols
-    index.flags.writeable = False
-    return index
+def _pair_tables_ext(ext: np.ndarray, k: int) -> np.ndarray:
+    """(n_pairs, k, k) float64 tables of rater pairs over the items both rated.
 
-
-def _tables_from_gram(gram: np.ndarray, r: int, k: int) -> np.ndarray:
-    return gram.ravel().take(_pair_gather_index(r, k))
+    One bincount per rater pair (a loop over pairs, never over items).
+    """
+    r = ext.shape[1]
+    g_idx, h_idx = _pair_index(r)
+    cols = np.ascontiguousarray(ext.T)
+    k1 = k + 1
+    tables = np.empty((g_idx.size, k, k))
+    for p, (g, h) in enumerate(zip(g_idx.tolist(), h_idx.tolist(), strict=True)):
+        cell = cols[g] * k1 + cols[h]
+        tables[p] = np.bincount(cell, minlength=k1 * k1).reshape(k1, k1)[:k, :k]
+    return tables
 
 
 def pair_tables(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
     """(n_pairs, k, k) int64 tables of rater pairs (g < h, in ``np.triu_indices`` order).
 
-    Each table counts the items both raters rated (one Gram product of the rater one-hots).
+    Each table counts the items both raters rated.
     """
     k = _categories_iv(k)
     c = _matrix_iv(codes, k)
-    gram, _ = _gram_and_counts(c, k)
-    return _tables_from_gram(gram, c.shape[1], k).astype(np.int64)
+    return _pair_tables_ext(_extended(c, k), k).astype(np.int64)
 
 
 def _agreement_counts(counts: np.ndarray) -> tuple[int, int]:
@@ -151,8 +152,7 @@ def pairwise_cohen(
     c = _matrix_iv(codes, k)
     w = weights_iv(weights, k)
     r = c.shape[1]
-    gram, _ = _gram_and_counts(c, k)
-    tables = _tables_from_gram(gram, r, k)
+    tables = _pair_tables_ext(_extended(c, k), k)
     g_idx, h_idx = _pair_index(r)
     out: list[list[Estimate | None]] = [[None] * r for _ in range(r)]
     estimates = _cohen_estimates(tables, w, level)
@@ -199,6 +199,8 @@ def light_kappa_from_sums(
     """Light's kappa from column sums of :func:`light_kappa_features`, shape (..., n_pairs·k²).
 
     Mean over rater pairs of Cohen's kappa; NaN when any pair's kappa is undefined.
+
+    Validated against: :func:`light_kappa` on resampled items (test-only comparison).
     """
     k = _categories_iv(k)
     s = np.asarray(sums, dtype=np.float64)
@@ -238,8 +240,8 @@ def light_kappa(
     level = _confidence_level_iv(confidence_level)
     c = _matrix_iv(codes, k)
     r = c.shape[1]
-    gram, counts = _gram_and_counts(c, k)
-    items, agreeing = _agreement_counts(counts)
+    ext = _extended(c, k)
+    items, agreeing = _agreement_counts(_counts(c, k)[0])
     if r < 2:
         return Estimate(
             estimate=None,
@@ -251,8 +253,8 @@ def light_kappa(
     w = weights_iv(weights, k)
     n_pairs = r * (r - 1) // 2
     # The point estimate goes through the bootstrap's formula (_light_parts); its sums are the
-    # column sums of light_kappa_features (the pair tables), from one Gram product.
-    sums = _tables_from_gram(gram, r, k).reshape(-1)
+    # column sums of light_kappa_features (the pair tables), one bincount per pair.
+    sums = _pair_tables_ext(ext, k).reshape(-1)
     pair_k, mean = _light_parts(sums, k, n_pairs, w)
     value = float(mean)
     g_idx, h_idx = _pair_index(r)
@@ -327,26 +329,10 @@ def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
 
 def _conger_sums(c: np.ndarray, k: int, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Column sums of the Conger features without building them (same numbers), and counts."""
-    n, r = c.shape
-    if n <= _CHUNK_ITEMS:
-        block = c[:, :, None] == np.arange(k)
-        counts = block.sum(axis=1, dtype=np.float64)
-        multi, dis = _item_disagreement(counts, w)
-        head = np.array([multi.sum(), dis.sum()], dtype=np.float64)
-        return np.concatenate([head, block.sum(axis=0, dtype=np.float64).ravel()]), counts
-    sums = np.zeros(2 + r * k)
-    counts = np.empty((n, k))
-    start = 0
-    for block in _onehot_blocks(c, k):
-        size = block.shape[0]
-        block_counts = block.sum(axis=1, dtype=np.float64)
-        counts[start : start + size] = block_counts
-        multi, dis = _item_disagreement(block_counts, w)
-        sums[0] += multi.sum()
-        sums[1] += dis.sum()
-        sums[2:] += block.sum(axis=0, dtype=np.float64).reshape(-1)
-        start += size
-    return sums, counts
+    counts, rater_counts = _counts(c, k)
+    multi, dis = _item_disagreement(counts.astype(np.float64), w)
+    head = np.array([multi.sum(), dis.sum()], dtype=np.float64)
+    return np.concatenate([head, rater_counts.ravel().astype(np.float64)]), counts
 
 
 def conger_kappa_from_sums(
@@ -358,6 +344,8 @@ def conger_kappa_from_sums(
     bootstrap replicate that happens to draw none of a rater's items stays defined.  NaN where
     undefined: no item with two ratings, fewer than two raters with ratings, or chance
     agreement 1.  The sums must come from features built with the same ``weights``.
+
+    Validated against: :func:`conger_kappa` on resampled items, irrCAC via that function.
     """
     k = _categories_iv(k)
     s = np.asarray(sums, dtype=np.float64)
@@ -421,7 +409,7 @@ def conger_kappa(
         warnings.append(f"Conger's kappa leaves out raters with no rating: {', '.join(idle)}.")
         c = c[:, rated]
     # The point estimate goes through the bootstrap's formula (_conger_parts); its sums are the
-    # column sums of conger_kappa_features, accumulated block by block without building them.
+    # column sums of conger_kappa_features, counted directly without building them.
     sums, counts = _conger_sums(c, k, w)
     items, agreeing = _agreement_counts(counts)
 

@@ -62,7 +62,11 @@ def normal_quantile(confidence_level: float) -> float:
 def clopper_pearson_interval(
     successes: int, n: int, confidence_level: float = 0.95
 ) -> tuple[float, float]:
-    """Exact interval: beta quantiles B(a/2; x, n-x+1) and B(1-a/2; x+1, n-x) (Clopper & Pearson 1934)."""
+    """Exact interval: beta quantiles B(a/2; x, n-x+1) and B(1-a/2; x+1, n-x) (Clopper & Pearson 1934).
+
+    Validated against: Conover (1999) limits for 5/25; Newcombe (1998) Table II (from memory);
+    the tail-area definition via scipy.stats.binom; scipy.stats.binomtest (test-only).
+    """
     from scipy.special import betaincinv
 
     alpha = 1.0 - _confidence_level_iv(confidence_level)
@@ -78,7 +82,11 @@ def clopper_pearson_interval(
 
 
 def wilson_interval(successes: int, n: int, confidence_level: float = 0.95) -> tuple[float, float]:
-    """Score interval (Wilson 1927): centre (x + z²/2)/(n + z²), half-width z√(x(n-x)/n + z²/4)/(n + z²)."""
+    """Score interval (Wilson 1927): centre (x + z²/2)/(n + z²), half-width z√(x(n-x)/n + z²/4)/(n + z²).
+
+    Validated against: Newcombe (1998) Table II, method 3 (from memory); inversion of the score
+    test; scipy.stats.binomtest (test-only).
+    """
     z = normal_quantile(confidence_level)
     x = _count_iv(successes, "successes")
     n = _count_iv(n, "n")
@@ -151,6 +159,10 @@ def zero_failure_sample_size(reliability: float, confidence: float) -> int:
     with R^n ≤ 1 - C is n = ceil(ln(1 - C) / ln(R)) (the success-run relation; e.g. 59 for
     R = C = 0.95, 90 for R = 0.95 and C = 0.99, 299 for R = 0.99 and C = 0.95).
     It equals the n at which the exact (Clopper-Pearson) one-sided lower bound for n/n reaches R.
+
+    Validated against: the minimality R^n ≤ 1 − C < R^(n−1) and the Clopper & Pearson (1934)
+    one-sided bound (1 − C)^(1/n) for n/n (the 59 / 90 / 299 figures are common practice, no
+    source).
     """
     r = float(reliability)
     c = float(confidence)

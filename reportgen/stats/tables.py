@@ -13,11 +13,13 @@ Validated against: a per-item Python loop and ``np.unique(axis=0)`` in ``tests/s
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
 __all__ = ["CountPatterns", "as_patterns", "compress", "count_table", "patterns"]
 
+_SMALL_TABLE = 512  # tables with at most this many items are not compressed
 _DENSE_KEYS_LIMIT = 1 << 24  # largest key space handled by a direct bincount
 
 
@@ -198,7 +200,12 @@ def as_patterns(counts: np.ndarray | CountPatterns) -> CountPatterns:
         raise TypeError(f"counts must be integers, got dtype {c.dtype}")
     if c.size and int(c.min()) < 0:
         raise ValueError("counts must not be negative")
-    return compress(c.astype(np.int64, copy=False))
+    c = c.astype(np.int64, copy=False)
+    if c.shape[0] <= _SMALL_TABLE:  # compressing a small table costs more than it saves
+        n = c.shape[0]
+        return CountPatterns(rows=c, multiplicity=np.ones(n, dtype=np.int64),
+                             inverse=np.arange(n, dtype=np.intp))
+    return compress(c)
 
 
 # --- small helpers shared by the count-table coefficients (fleiss, gwet, krippendorff) -------
@@ -213,6 +220,7 @@ def _confidence_level_iv(confidence_level: float) -> float:
     return level
 
 
+@lru_cache(maxsize=64)
 def _normal_critical(confidence_level: float) -> float:
     """Two-sided standard-normal critical value (1.959964 for 0.95)."""
     from statistics import NormalDist

@@ -227,3 +227,26 @@ def test_input_validation() -> None:
         bootstrap_many({"a": f}, {"b": lambda s: s[..., 0]})
     with pytest.raises(ValueError, match="multiplicity"):
         bootstrap(f, lambda s: s[..., 0], multiplicity=np.ones(3, dtype=int))
+
+
+def test_poissonised_sampler_marginals_are_exactly_binomial() -> None:
+    """The fast sampler's marginal count of one pattern is Binomial(n, m_p / n); chi-square
+    goodness of fit over 40,000 replicates (scipy for the reference pmf)."""
+    from scipy import stats
+
+    mult = np.array([1] * 70 + [2] * 10 + [30] * 3 + [100, 250])
+    n = int(mult.sum())
+    w = draw_pattern_counts(np.random.default_rng(21), mult, 40000)
+    assert np.all(w.sum(1) == n)
+    for col in (0, 70, 80, mult.size - 2):
+        x = w[:, col].astype(int)
+        pmf = stats.binom.pmf(np.arange(x.max() + 1), n, mult[col] / n)
+        expected = 40000 * pmf
+        keep = expected >= 5
+        observed = np.bincount(x, minlength=pmf.size)
+        obs = np.append(observed[keep], observed[~keep].sum())
+        exp = np.append(expected[keep], 40000 - expected[keep].sum())
+        if exp[-1] < 5:  # merge a thin remainder into the last kept cell
+            obs, exp = np.append(obs[:-2], obs[-2:].sum()), np.append(exp[:-2], exp[-2:].sum())
+        chi2 = float(((obs - exp) ** 2 / exp).sum())
+        assert stats.chi2.sf(chi2, obs.size - 1) > 1e-4

@@ -342,3 +342,21 @@ def test_property_perfect_agreement_is_one(k: int, r: int, truth: list[int]) -> 
             assert light == 1.0 and conger == 1.0
         else:
             assert light is None and conger is None
+
+
+def test_block_path_for_large_studies_matches_features() -> None:
+    # More items than one one-hot block (2^16): the block-wise sums must equal the feature sums.
+    rng = np.random.default_rng(61)
+    codes = _random_codes(rng, 70_000, 3, 4, 0.05).astype(np.int8)
+    light = light_kappa(codes, 4)
+    assert light.estimate == pytest.approx(
+        float(light_kappa_from_sums(light_kappa_features(codes, 4).sum(axis=0), 4)), abs=1e-13
+    )
+    assert np.array_equal(pair_tables(codes, 4).ravel(), light_kappa_features(codes, 4).sum(axis=0))
+    conger = conger_kappa(codes, 4, weights="linear")
+    sums = conger_kappa_features(codes, 4, "linear").sum(axis=0)
+    # features.sum(axis=0) adds 70,000 fractions row by row (relative error ~1e-13); the
+    # block-wise pairwise sums of the point estimate are the more exact of the two.
+    assert conger.estimate == pytest.approx(
+        float(conger_kappa_from_sums(sums, 4, "linear")), abs=1e-12
+    )
