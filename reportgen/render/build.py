@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from ..errors import ExistsError, RenderError
+from ..errors import ExistsError, InputError
 from ..model import Ratings, Study
 
 Progress = Callable[[str], None]
@@ -59,7 +59,9 @@ def resolve_generated_at(value: dt.datetime | str | None) -> dt.datetime:
         try:
             value = dt.datetime.fromisoformat(text)
         except ValueError:
-            raise RenderError(f"--generated-at: not an ISO 8601 time: {value!r} (e.g. 2026-11-20T09:00:00Z)") from None
+            raise InputError.single(
+                "--generated-at", f"not an ISO 8601 time: {value!r}", hint="write it like 2026-11-20T09:00:00Z"
+            ) from None
     if value is None:
         epoch = os.environ.get("SOURCE_DATE_EPOCH")
         if epoch and epoch.strip().isdigit():

@@ -86,7 +86,7 @@ def _cmap(name: str) -> frozenset[int]:
     path = font_path(name)
     if not path.is_file():
         raise RenderError(f"the shipped font {name} is missing from {path.parent}; reinstall reportgen")
-    with TTFont(str(path)) as font:
+    with TTFont(str(path), lazy=True) as font:  # reads the cmap table only
         return frozenset(font.getBestCmap())
 
 
@@ -130,10 +130,11 @@ def check_glyphs(text: str) -> tuple[str, str]:
     Raises RenderError naming every character that no shipped font covers.
     """
     main = _cmap(FACES[0][2])
-    wide = _cmap(FALLBACK[2])
     chars = {c for c in text if not _ignorable(c)}
-    need_wide = sorted(c for c in chars if ord(c) not in main and ord(c) in wide)
-    missing = sorted(c for c in chars if ord(c) not in main and ord(c) not in wide)
+    outside = {c for c in chars if ord(c) not in main}
+    wide = _cmap(FALLBACK[2]) if outside else frozenset()  # 3.4 MB font: only when needed
+    need_wide = sorted(c for c in outside if ord(c) in wide)
+    missing = sorted(c for c in outside if ord(c) not in wide)
     if missing:
         shown = ", ".join(f"U+{ord(c):04X} {unicodedata.name(c, '?')}" for c in missing[:8])
         where = text.find(missing[0])

@@ -10,15 +10,32 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-from .filters import _value, fmt_int, fmt_num, fmt_pct
+from .filters import _value, fmt_int, fmt_pct
 
 
-def _interval(m: Mapping[str, Any], *, pct: bool) -> str:
+def _short_band(v: float) -> str:
+    if v < 0:
+        return "worse than chance"
+    if v < 0.2:
+        return "chance level"
+    if v < 0.4:
+        return "weak"
+    if v < 0.6:
+        return "moderate"
+    if v < 0.8:
+        return "good"
+    if v < 1.0:
+        return "very good"
+    return "perfect"
+
+
+def _spread(m: Mapping[str, Any]) -> str:
+    """What the interval says, in words (the numbers are in the interval column)."""
     lo, hi = _value(m, "ci_low"), _value(m, "ci_high")
     if lo is None or hi is None:
-        return ""
-    f = fmt_pct if pct else (lambda v: fmt_num(v, 2))
-    return f"; the data are consistent with anything from {f(lo)} to {f(hi)}"
+        return "; no interval"
+    a, b = _short_band(lo), _short_band(hi)
+    return "; the interval stays in that band" if a == b else f"; the interval spans {a} to {b}"
 
 
 def _undefined(m: Any) -> str | None:
@@ -30,13 +47,13 @@ def _undefined(m: Any) -> str | None:
 
 
 def read_proportion(m: Any, what: str = "items agree") -> str:
-    """"41 of 50 items agree (82 %); the data are consistent with anything from … to …"."""
+    """"41 of 50 items agree (82.0 %)"; the interval is in its own column."""
     u = _undefined(m)
     if u:
         return u
     n, a = m.get("items"), m.get("agreeing")
     count = f"{fmt_int(a)} of {fmt_int(n)} {what}" if n is not None and a is not None else what
-    return f"{count} ({fmt_pct(m)}){_interval(m, pct=True)}"
+    return f"{count} ({fmt_pct(m)})"
 
 
 def chance_band(v: float) -> str:
@@ -60,7 +77,7 @@ def read_coefficient(m: Any) -> str:
     u = _undefined(m)
     if u:
         return u
-    return chance_band(float(_value(m) or 0.0)) + _interval(m, pct=False)
+    return chance_band(float(_value(m) or 0.0)) + _spread(m)
 
 
 def read_rate(m: Any, kind: str = "miss") -> str:
@@ -83,7 +100,7 @@ def read_effectiveness(m: Any) -> str:
     u = _undefined(m)
     if u:
         return u
-    return f"{fmt_pct(m)} of the ratings match the reference{_interval(m, pct=True)}"
+    return f"{fmt_pct(m)} of the ratings match the reference"
 
 
 def read_rank(m: Any) -> str:
@@ -93,7 +110,7 @@ def read_rank(m: Any) -> str:
         return u
     v = float(_value(m) or 0.0)
     word = "strong" if v >= 0.7 else "moderate" if v >= 0.4 else "weak" if v >= 0.1 else "little or no"
-    return f"{word} agreement on the order of the items{_interval(m, pct=False)}"
+    return f"{word} agreement on the order of the items"
 
 
 def read_measure(m: Any, key: str) -> str:

@@ -81,6 +81,8 @@ def fleiss_kappa_features(counts: np.ndarray) -> np.ndarray:
     ``d_ij = n_ij (r_i - n_ij) / (r_i (r_i - 1))``; items with too few ratings have zeros where
     they cannot contribute.  Feed column sums to :func:`fleiss_kappa_from_sums` and
     :func:`fleiss_kappa_by_category_from_sums`.
+
+    Validated against: the point estimates of :func:`fleiss_kappa` (same path) and statsmodels.
     """
     c = np.asarray(counts, dtype=np.float64)
     if c.ndim != 2:
@@ -112,6 +114,8 @@ def fleiss_kappa_from_sums(sums: np.ndarray) -> np.ndarray:
     """Fleiss' kappa from column sums of :func:`fleiss_kappa_features`; any leading batch shape.
 
     NaN where the coefficient is undefined (no item with two ratings, or chance agreement 1).
+
+    Validated against: Fleiss (1971) data, Wikipedia "Fleiss' kappa" example, statsmodels, irrCAC.
     """
     e, a, u, pi_sum, _ = _split(sums)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -123,7 +127,11 @@ def fleiss_kappa_from_sums(sums: np.ndarray) -> np.ndarray:
 
 
 def fleiss_kappa_by_category_from_sums(sums: np.ndarray) -> np.ndarray:
-    """Per-category kappas, shape ``(..., k)``, from sums of :func:`fleiss_kappa_features`."""
+    """Per-category kappas, shape ``(..., k)``, from sums of :func:`fleiss_kappa_features`.
+
+    Validated against: Fleiss (1971) kappa_j (.245 .245 .520 .471 .566); the kappa of each
+    collapsed two-category table.
+    """
     e, _, u, pi_sum, d = _split(sums)
     with np.errstate(divide="ignore", invalid="ignore"):
         pi = pi_sum / u[..., None]
@@ -148,6 +156,9 @@ def fnl_null_variance(
     ratings the degenerate (pairwise) part is weighted by ``sum_i 1/(r_i(r_i-1)) / n_2^2`` and the
     linear part, which cancels when every rated item has two or more ratings, is kept (our
     delta-method derivation under independent ratings with fixed proportions).
+
+    Validated against: FNL (1979) via R irr's printed z = 17.652 on Fleiss (1971) data; a
+    simulation under independence with varying ratings per item (tests/stats/test_fleiss.py).
     """
     p = np.asarray(p, dtype=np.float64)
     q = 1.0 - p

@@ -5,16 +5,16 @@ pair and are not bootstrapped: the analysis reports their analytic tests (and, f
 analytic interval) only.
 
 - :func:`kendall_w` — Kendall & Babington Smith (1939) coefficient of concordance of m raters
-  over n items, each rater's ratings turned into mid-ranks.  Tie correction per Kendall (1948)
-  (Siegel & Castellan 1988, §9.4): W = 12 S / (m²(n³ − n) − m Σ_j T_j), T_j = Σ (t³ − t) over
+  over n items, each rater's ratings turned into mid-ranks.  Tie correction per Kendall (1948),
+  as also given by Siegel & Castellan (1988) (chapter on W; from memory): W = 12 S / (m²(n³ − n) − m Σ_j T_j), T_j = Σ (t³ − t) over
   rater j's tie groups.  Test: χ² = m(n − 1) W on n − 1 degrees of freedom (equal to
   Friedman's tie-corrected statistic).
 - :func:`kendall_tau_b` — Kendall (1945) tau-b of two rating vectors.  Test of τ = 0 from the
   exact null variance of S under ties (Kendall 1948, *Rank Correlation Methods*, ch. 4);
   interval from the large-sample non-null (delta-method) standard error of Brown & Benedetti
-  (1977), as given by Agresti (2010, *Analysis of Ordinal Categorical Data*, §7.1)
-  [formula from memory, checked against the jackknife in the tests].  Both are computed from the
-  contingency table of the two ratings (no O(n²) pair loop).
+  (1977), as given by Agresti (2010, *Analysis of Ordinal Categorical Data*)
+  [formula from memory, checked against the jackknife in the tests].  Tau-b is computed from the
+  contingency table of the two ratings (no O(n²) pair loop); W from per-rater category counts.
 
 Validated against: scipy.stats.kendalltau (tau-b and its asymptotic p) and
 scipy.stats.friedmanchisquare (test-only cross-checks); Kendall's relation between W and the
@@ -69,16 +69,20 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
     if c.ndim != 2:
         raise ValueError(f"codes must be a 2-D array items × raters, got {c.ndim} dimension(s)")
     warnings: list[str] = []
-    complete = (c >= 0).all(axis=1)
+    c = np.ascontiguousarray(c.T)  # raters × items: reductions over raters run on whole rows
+    complete = (c >= 0).all(axis=0)
     dropped = int((~complete).sum())
     if dropped:
         warnings.append(
             f"Kendall's W leaves out {dropped} item(s) with a missing rating (it needs every "
             "rater's rating of every item)."
         )
-        c = c[complete]
-    n, m = c.shape
-    agreeing = int((c.max(axis=1) == c.min(axis=1)).sum()) if n and m else 0
+        c = c[:, complete]
+    m, n = c.shape
+    same = np.ones(n, dtype=bool)
+    for g in range(1, m):  # loop over raters, never over items
+        same &= c[g] == c[0]
+    agreeing = int(same.sum()) if m else 0
 
     def undefined(reason: str) -> Estimate:
         return Estimate(
@@ -97,11 +101,12 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
         )
 
     k = int(c.max()) + 1
-    cell = np.arange(0, m * k, k, dtype=np.intp) + c  # rater j, category c -> j·k + c
-    counts = np.bincount(cell.ravel(), minlength=m * k).reshape(m, k)
+    counts = np.stack([np.bincount(c[g], minlength=k) for g in range(m)])  # (m, k)
     below = np.cumsum(counts, axis=1) - counts
     midrank = below + (counts + 1) / 2.0  # (m, k): mid-rank of category c for rater j
-    rank_sums = midrank.ravel().take(cell).sum(axis=1)  # R_i over raters, shape (n,)
+    rank_sums = np.zeros(n)  # R_i over raters
+    for g in range(m):
+        rank_sums += midrank[g].take(c[g])
     dev = rank_sums - m * (n + 1) / 2.0
     s = float(dev @ dev)
     ties = float((counts.astype(np.float64) ** 3 - counts).sum())

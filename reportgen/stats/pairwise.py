@@ -10,7 +10,8 @@ Input: ``codes`` of shape (n_items, n_raters), integer category indices 0..k-1, 
   published statistic).
 - :func:`conger_kappa` — Conger (1980): the multi-rater generalisation of Cohen's kappa, with
   chance agreement from each rater's own category shares.  Missing ratings follow Gwet's
-  generalisation (Gwet 2014, *Handbook of Inter-Rater Reliability*, 4th ed., ch. 2-3):
+  generalisation (Gwet 2014, *Handbook of Inter-Rater Reliability*, 4th ed.; chapter from memory,
+  formula confirmed numerically against irrCAC):
   observed agreement averages over the items with at least two ratings,
   p_a = mean_i (Σ_kl w_kl r_ik r_il − r_i) / (r_i(r_i − 1)); rater g's share of category k is
   p_gk = (items g put in k) / (items g rated), over every item g rated; chance agreement is
@@ -69,7 +70,9 @@ _SMALL = 1 << 14  # ratings up to which one bincount beats the column-wise count
 
 
 def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """((n_items, k) ratings per category per item, (n_raters, k) per rater), int64 counts.
+    """((k, n_items) ratings per category per item, (n_raters, k) per rater), int64 counts.
+
+    Item counts are category-major so that per-item sums run over k contiguous rows.
 
     Small studies: one bincount each.  Large ones: a loop over raters × categories (never over
     items) adding boolean columns into small-integer accumulators, which avoids building
@@ -80,7 +83,7 @@ def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
         ext = _extended(codes, k)
         k1 = k + 1
         item_idx = ext + (np.arange(n, dtype=np.intp) * k1)[:, None]
-        items = np.bincount(item_idx.ravel(), minlength=n * k1).reshape(n, k1)[:, :k]
+        items = np.bincount(item_idx.ravel(), minlength=n * k1).reshape(n, k1)[:, :k].T
         rater_idx = ext + (np.arange(r, dtype=np.intp) * k1)[None, :]
         raters = np.bincount(rater_idx.ravel(), minlength=r * k1).reshape(r, k1)[:, :k]
         return items, raters
@@ -93,7 +96,7 @@ def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
             hit = column == cat
             acc[cat] += hit
             raters[g, cat] = np.count_nonzero(hit)
-    return acc.T.astype(np.int64), raters
+    return acc.astype(np.int64), raters
 
 
 def _pair_tables_ext(ext: np.ndarray, k: int) -> np.ndarray:
@@ -122,11 +125,11 @@ def pair_tables(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
     return _pair_tables_ext(_extended(c, k), k).astype(np.int64)
 
 
-def _agreement_counts(counts: np.ndarray) -> tuple[int, int]:
-    """(items with ≥ 2 ratings, those on which every rating is the same) from (n, k) counts."""
-    m = counts.sum(axis=1)
+def _agreement_counts(by_category: np.ndarray) -> tuple[int, int]:
+    """(items with ≥ 2 ratings, those on which every rating is the same) from (k, n) counts."""
+    m = by_category.sum(axis=0)
     multi = m >= 2
-    return int(multi.sum()), int((multi & (counts.max(axis=1) == m)).sum())
+    return int(multi.sum()), int((multi & (by_category.max(axis=0) == m)).sum())
 
 
 # --------------------------------------------------------------------------- pairwise Cohen
@@ -306,11 +309,13 @@ def conger_kappa_features(
     return _conger_features(_matrix_iv(codes, k), k, weights_iv(weights, k))
 
 
-def _item_disagreement(counts: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Per item: (≥ 2 ratings mask, Σ_kl (1 − w_kl) r_ik r_il / (r_i(r_i − 1)), 0 below two)."""
-    m = counts.sum(axis=1)
+def _item_disagreement(by_category: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per item from (k, n) counts: (≥ 2 ratings mask, Σ_kl (1 − w_kl) r_ik r_il / (r_i(r_i − 1)),
+    0 below two ratings)."""
+    counts = np.ascontiguousarray(by_category, dtype=np.float64)
+    m = counts.sum(axis=0)
     multi = m >= 2
-    dis = ((counts @ (1.0 - w)) * counts).sum(axis=1)
+    dis = (((1.0 - w) @ counts) * counts).sum(axis=0)
     out = np.zeros_like(dis)
     np.divide(dis, m * (m - 1.0), out=out, where=multi)
     return multi, out
@@ -319,7 +324,7 @@ def _item_disagreement(counts: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, n
 def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
     n, r = c.shape
     onehot = (c[:, :, None] == np.arange(k)).reshape(n, r * k)
-    multi, dis = _item_disagreement(onehot.reshape(n, r, k).sum(axis=1).astype(np.float64), w)
+    multi, dis = _item_disagreement(onehot.reshape(n, r, k).sum(axis=1).T, w)
     feats = np.empty((n, 2 + r * k), dtype=np.float64)
     feats[:, 0] = multi
     feats[:, 1] = dis
@@ -330,7 +335,7 @@ def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
 def _conger_sums(c: np.ndarray, k: int, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Column sums of the Conger features without building them (same numbers), and counts."""
     counts, rater_counts = _counts(c, k)
-    multi, dis = _item_disagreement(counts.astype(np.float64), w)
+    multi, dis = _item_disagreement(counts, w)
     head = np.array([multi.sum(), dis.sum()], dtype=np.float64)
     return np.concatenate([head, rater_counts.ravel().astype(np.float64)]), counts
 

@@ -159,3 +159,26 @@ def test_fmt_ci() -> None:
     assert f.fmt_ci(m) == "0.412 to 0.600"
     assert f.fmt_ci(m, 1, pct=True) == "41.2 % to 60.0 %"
     assert f.fmt_ci({"estimate": 0.5, "ci_low": None, "ci_high": None}) == "—"
+
+
+def test_cli_start_up_imports_no_render_stack() -> None:
+    """`reportgen --help` and `build --help` must not import the render stack (start-up speed)."""
+    import subprocess
+    import sys
+
+    for args in (["--help"], ["build", "--help"]):
+        r = subprocess.run([sys.executable, "-X", "importtime", "-m", "reportgen", *args], capture_output=True, text=True)
+        assert r.returncode == 0, r.stderr[-500:]
+        imported = {line.split("|")[-1].strip().split(".")[0] for line in r.stderr.splitlines() if "|" in line}
+        assert not imported & {"weasyprint", "matplotlib", "jinja2", "fontTools", "pandas"}, args
+    r = subprocess.run([sys.executable, "-m", "reportgen", "build", "--help"], capture_output=True, text=True)
+    for option in ("--output", "--replace", "--generated-at", "--strict", "--no-pdf", "--quiet"):
+        assert option in r.stdout, option
+
+
+def test_bad_generated_at_is_input_error(tmp_path, run_cli) -> None:  # type: ignore[no-untyped-def]
+    from .conftest import small_study
+
+    code, _o, err = run_cli("build", small_study(tmp_path / "s"), "-o", tmp_path / "out", "--generated-at", "yesterday")
+    assert code == 2 and "--generated-at" in err and "ISO 8601" in err
+    assert not (tmp_path / "out").exists()

@@ -250,3 +250,17 @@ def test_poissonised_sampler_marginals_are_exactly_binomial() -> None:
             obs, exp = np.append(obs[:-2], obs[-2:].sum()), np.append(exp[:-2], exp[-2:].sum())
         chi2 = float(((obs - exp) ** 2 / exp).sum())
         assert stats.chi2.sf(chi2, obs.size - 1) > 1e-4
+
+
+def test_bca_falls_back_to_percentile_when_every_resample_is_on_one_side() -> None:
+    x = np.random.default_rng(3).normal(size=50)
+    xbar = x.mean()
+    f = np.stack([x, np.ones_like(x)], axis=1)
+
+    def sq_dev(s: np.ndarray) -> np.ndarray:  # 0 at the estimate, positive in every resample
+        return (s[..., 0] / s[..., 1] - xbar) ** 2
+
+    r = bootstrap(f, sq_dev, resamples=500, seed=1)
+    assert r.method == "bootstrap percentile"
+    assert any("BCa correction not possible" in w for w in r.warnings)
+    assert r.ci_low is not None and r.ci_low >= 0.0

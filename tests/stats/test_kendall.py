@@ -40,7 +40,7 @@ def test_siegel_1956_three_raters_six_items_from_memory() -> None:
 
 def test_tied_example_by_hand() -> None:
     # Hand computation with the tie-corrected formula of Kendall (1948) as given by Siegel &
-    # Castellan (1988, section 9.4): W = 12 S / (m^2 (n^3 - n) - m sum_j T_j), T_j = sum (t^3 - t).
+    # Castellan (1988) (from memory): W = 12 S / (m^2 (n^3 - n) - m sum_j T_j), T_j = sum (t^3 - t).
     # Raters' mid-ranks: (1.5, 1.5, 3, 4), (1, 2.5, 2.5, 4), (1, 2, 3.5, 3.5);
     # R = 3.5, 6, 9, 11.5 around 7.5 -> S = 36.5; sum T = 3 * 6 = 18;
     # W = 438 / (9 * 60 - 3 * 18) = 438 / 486 = 73 / 81; chi-square = 3 * 3 * W = 73 / 9.

@@ -360,3 +360,15 @@ def test_block_path_for_large_studies_matches_features() -> None:
     assert conger.estimate == pytest.approx(
         float(conger_kappa_from_sums(sums, 4, "linear")), abs=1e-12
     )
+
+
+@pytest.mark.parametrize(("n", "r"), [(40, 3), (20_000, 3), (3_000, 300)])
+def test_both_counting_paths_give_exact_counts(n: int, r: int) -> None:
+    from reportgen.stats.pairwise import _counts
+
+    rng = np.random.default_rng(n + r)
+    codes = _random_codes(rng, n, r, 4, 0.1).astype(np.int16)
+    items, raters = _counts(codes, 4)
+    onehot = codes[:, :, None] == np.arange(4)
+    assert np.array_equal(items, onehot.sum(axis=1).T)
+    assert np.array_equal(raters, onehot.sum(axis=0))

@@ -48,7 +48,8 @@ def test_newcombe_1998_table_ii_from_memory(
 
 def test_conover_1999_exact_limits_5_of_25() -> None:
     # Conover, W. J. (1999) Practical Nonparametric Statistics, 3rd ed., binomial confidence
-    # limits table: 5 successes in 25 trials, 95 % exact limits 0.068 and 0.407 (3 decimals).
+    # limits table: 5 successes in 25 trials, 95 % exact limits 0.068 and 0.407 (3 decimals;
+    # read in a public page quoting the table).
     e = proportion(5, 25)
     assert e.estimate == 0.2
     assert round(e.ci_low, 3) == 0.068
