@@ -17,7 +17,7 @@ from functools import lru_cache
 
 import numpy as np
 
-__all__ = ["CountPatterns", "as_patterns", "compress", "count_table", "patterns"]
+__all__ = ["CountPatterns", "as_patterns", "compress", "count_patterns", "count_table", "patterns"]
 
 _SMALL_TABLE = 512  # tables with at most this many items are not compressed
 _DENSE_KEYS_LIMIT = 1 << 24  # largest key space handled by a direct bincount
@@ -178,6 +178,61 @@ def _hash_rows(x: np.ndarray) -> np.ndarray:
             h *= mult
             h ^= h >> np.uint64(31)
     return h
+
+
+def count_patterns(codes: np.ndarray, n_categories: int) -> CountPatterns:
+    """Distinct rows of the items × categories count table, straight from coded ratings.
+
+    Same result as ``compress(count_table(codes, n_categories))`` (the order of the patterns
+    may differ), but faster on large studies: an item's row of counts is identified by the
+    exact mixed-radix key ``sum over its ratings of (s + 1) ** code`` (``s`` ratings per item at
+    most), accumulated one rating slot at a time, so the full table is never built.  Falls back
+    to building the table when the key would not fit in 62 bits.
+
+    Validated against: ``compress(count_table(...))`` in ``tests/stats/test_tables.py``.
+    """
+    k = int(n_categories)
+    if k < 1:
+        raise ValueError("n_categories must be at least 1")
+    a = np.asarray(codes)
+    if a.ndim < 1:
+        raise ValueError("codes must have at least one dimension (items first)")
+    if a.dtype.kind not in "iu":
+        raise TypeError(f"codes must be an integer array, got dtype {a.dtype}")
+    n = a.shape[0]
+    slots = int(np.prod(a.shape[1:], dtype=np.int64)) if a.ndim > 1 else 1
+    radix = slots + 1
+    if n == 0 or slots == 0 or k * np.log2(radix) > 62:
+        return compress(count_table(a, k))
+    flat = a.reshape(n, slots)
+    lo, hi = int(flat.min()), int(flat.max())
+    if lo < -1 or hi >= k:
+        raise ValueError(
+            f"codes must lie in -1 .. {k - 1} (-1 = missing); found values from {lo} to {hi}"
+        )
+    power = np.zeros(k + 1, dtype=np.int64)
+    power[1:] = radix ** np.arange(k, dtype=np.int64)
+    by_slot = np.ascontiguousarray(flat.T)
+    key = np.zeros(n, dtype=np.int64)
+    for row in by_slot:
+        key += power.take(row.astype(np.intp) + 1)
+    unique_keys, mult, inverse = _group_keys(key, radix**k)
+    digits = radix ** np.arange(k, dtype=np.int64)
+    rows = (unique_keys[:, None] // digits[None, :]) % radix
+    return CountPatterns(rows=rows.astype(np.int64), multiplicity=mult, inverse=inverse)
+
+
+def _group_keys(key: np.ndarray, keyspace: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``(unique_keys, counts, inverse)`` of non-negative int64 keys below ``keyspace``."""
+    n = key.shape[0]
+    if keyspace <= min(_DENSE_KEYS_LIMIT, 4 * n) or keyspace <= 4096:
+        counts = np.bincount(key, minlength=keyspace)
+        present = np.flatnonzero(counts)
+        label = np.zeros(keyspace, dtype=np.intp)
+        label[present] = np.arange(present.shape[0], dtype=np.intp)
+        return present.astype(np.int64), counts[present].astype(np.int64), label[key]
+    u, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
+    return u, counts.astype(np.int64), inverse.astype(np.intp)
 
 
 def as_patterns(counts: np.ndarray | CountPatterns) -> CountPatterns:

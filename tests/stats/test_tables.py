@@ -96,3 +96,20 @@ def test_compress_and_as_patterns() -> None:
         as_patterns(np.array([[1.5, 1.0]]))
     with pytest.raises(ValueError, match="table"):
         as_patterns(np.array([1, 2]))
+
+
+@pytest.mark.parametrize(
+    ("shape", "k", "seed"),
+    [((200, 4), 3, 1), ((300, 3, 2), 5, 2), ((50, 20), 5, 3), ((10, 1), 2, 4), ((40, 70), 12, 5)],
+)
+def test_count_patterns_equals_compressed_count_table(shape, k, seed) -> None:
+    from reportgen.stats.tables import count_patterns
+
+    codes = np.random.default_rng(seed).integers(-1, k, size=shape).astype(np.int8)
+    got = count_patterns(codes, k)
+    table = count_table(codes, k)
+    np.testing.assert_array_equal(got.rows[got.inverse], table)
+    ref = compress(table)
+    assert _as_multiset(got.rows, got.multiplicity) == _as_multiset(ref.rows, ref.multiplicity)
+    with pytest.raises(ValueError, match="-1 .. "):
+        count_patterns(np.full(shape, k), k)
