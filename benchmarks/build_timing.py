@@ -29,7 +29,9 @@ FLOOR = "import sys, weasyprint; weasyprint.HTML(filename=sys.argv[1]).write_pdf
 
 def timed(args: list[str]) -> float:
     t = time.perf_counter()
-    subprocess.run(args, check=True, capture_output=True, env=dict(os.environ, CI="true"))
+    r = subprocess.run(args, capture_output=True, text=True, env=dict(os.environ, CI="true"))
+    if r.returncode != 0:
+        raise SystemExit(f"failed ({r.returncode}): {' '.join(args)}\n{r.stderr}")
     return time.perf_counter() - t
 
 
@@ -41,7 +43,22 @@ def main(runs: int = 5) -> None:
         with tempfile.TemporaryDirectory() as tmp:
             for n in range(runs):
                 out = Path(tmp) / f"b{n}"
-                builds.append(timed([py, "-m", "reportgen", "build", str(study), "-o", str(out), "--generated-at", WHEN, "--quiet"]))
+                builds.append(
+                    timed(
+                        [
+                            py,
+                            "-m",
+                            "reportgen",
+                            "build",
+                            str(study),
+                            "-o",
+                            str(out),
+                            "--generated-at",
+                            WHEN,
+                            "--quiet",
+                        ]
+                    )
+                )
                 html = next(out.rglob("*.html"))
                 floors.append(timed([py, "-c", FLOOR, str(html), str(Path(tmp) / f"f{n}.pdf")]))
         b, f = statistics.median(builds), statistics.median(floors)

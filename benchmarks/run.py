@@ -49,7 +49,11 @@ from reportgen.stats.krippendorff import (  # noqa: E402
     krippendorff_alpha_features,
     krippendorff_alpha_from_sums,
 )
-from reportgen.stats.tables import compress, count_table  # noqa: E402
+from reportgen.stats.tables import (  # noqa: E402
+    CountPatterns,
+    count_patterns,
+    count_table,
+)
 
 try:  # helper A's modules, if present when the benchmark runs
     from reportgen.stats.pairwise import conger_kappa, pairwise_cohen
@@ -127,6 +131,11 @@ def fmt(t: float | None) -> str:
     return f"{t:.2f} s"
 
 
+def ratio(ref: float, ours: float) -> str:
+    r = ref / ours
+    return f"{r:.1f}×" if r < 10 else f"{r:.0f}×"
+
+
 Row = tuple[str, str, float | None, float | None, str, float | None, str]
 
 
@@ -147,8 +156,8 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
     floor = floor_time(pooled, k)
     rows: list[Row] = []
 
-    def table() -> object:
-        return compress(count_table(pooled, k))
+    def table() -> CountPatterns:
+        return count_patterns(pooled, k)
 
     ours: dict[str, Callable[[], object]] = {
         "Fleiss' kappa (+ per category)": lambda: fleiss_kappa(table()),
@@ -213,7 +222,7 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
             rows.append((size.name, name, t, t / floor, "", None, ""))
         for ref_name, ref_fn in ref_list:
             rt = best_time(ref_fn, budget=0.3, max_runs=3 if n >= 100_000 else 50)
-            rows.append((size.name, name, t, t / floor, ref_name, rt, f"{rt / t:.0f}×"))
+            rows.append((size.name, name, t, t / floor, ref_name, rt, ratio(rt, t)))
     t_all = best_time(all_count_table)
     rows.append((size.name, "all count-table coefficients, one pass", t_all, t_all / floor,
                  "", None, ""))
@@ -237,7 +246,7 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
             ref_t = best_time(sk_pairs, max_runs=3)
         rows.append((size.name, "pairwise Cohen's kappa (all pairs)", t, t / floor,
                      "sklearn cohen_kappa_score loop" if ref_t else "", ref_t,
-                     f"{ref_t / t:.0f}×" if ref_t else ""))
+                     ratio(ref_t, t) if ref_t else ""))
     if conger_kappa is not None:
         t = best_time(lambda: conger_kappa(first_trial, k))
         ref_t = None
@@ -248,7 +257,7 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
             ref_t = best_time(lambda: CAC(df1, categories=cats).conger(), max_runs=3)
         rows.append((size.name, "Conger's kappa", t, t / floor,
                      "irrCAC conger()" if ref_t else "", ref_t,
-                     f"{ref_t / t:.0f}×" if ref_t else ""))
+                     ratio(ref_t, t) if ref_t else ""))
     if kendall_w is not None:
         t = best_time(lambda: kendall_w(first_trial))
         rows.append((size.name, "Kendall's W", t, t / floor, "", None, ""))
@@ -314,7 +323,7 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
         if loops != resamples:
             ref_label += f" (extrapolated from {loops})"
     rows.append((size.name, f"Fleiss bootstrap ({resamples}, BCa)", t, t / floor, ref_label,
-                 ref_t, f"{ref_t / t:.0f}×" if ref_t else ""))
+                 ref_t, ratio(ref_t, t) if ref_t else ""))
     t = best_time(every_boot, budget=1.0, max_runs=3)
     rows.append((size.name, f"every count-table coefficient bootstrapped ({resamples})", t,
                  t / floor, "", None, ""))
@@ -329,7 +338,7 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
         tracemalloc.stop()
         peak = peak_bytes / 2**20
     rows.insert(0, (size.name, "floor: one np.bincount pass (items × categories)", floor, 1.0,
-                    f"patterns: {compress(count_table(pooled, k)).n_patterns}", None, ""))
+                    f"patterns: {count_patterns(pooled, k).n_patterns}", None, ""))
     return rows, peak
 
 

@@ -47,7 +47,9 @@ class StrictWarnings(ReportgenError):
     "The same inputs and the same time give byte-identical files.",
 )
 @click.option("--strict", is_flag=True, help="Fail (exit 4) when the analysis raises any warning.")
-@click.option("--no-pdf", "no_pdf", is_flag=True, help="Write the HTML, charts and results.json only.")
+@click.option(
+    "--no-pdf", "no_pdf", is_flag=True, help="Write the HTML, charts and results.json only."
+)
 @click.option("--quiet", is_flag=True, help="Print nothing but errors.")
 def command(
     study_file: Path,
@@ -84,10 +86,12 @@ def command(
     warnings = results.get("warnings") or []
     if strict and warnings:
         lines = [
-            f"{w.get('measure')}: {w.get('message')}" if isinstance(w, dict) else str(w) for w in warnings
+            f"{w.get('measure')}: {w.get('message')}" if isinstance(w, dict) else str(w)
+            for w in warnings
         ]
         raise StrictWarnings(
-            f"{len(warnings)} warning(s) and --strict was given; nothing was written:\n  " + "\n  ".join(lines)
+            f"{len(warnings)} warning(s) and --strict was given; nothing was written:\n  "
+            + "\n  ".join(lines)
         )
     folder = build_report(
         study,
@@ -102,7 +106,9 @@ def command(
     if not quiet:
         verdict = results.get("verdict") or {}
         outcome = verdict.get("outcome") if isinstance(verdict, dict) else verdict
-        click.echo(f"{study.id} revision {study.revision}: {outcome or 'no verdict'}{' (DRAFT)' if replace else ''}")
+        click.echo(
+            f"{study.id} revision {study.revision}: {outcome or 'no verdict'}{' (DRAFT)' if replace else ''}"
+        )
         for p in sorted(folder.iterdir()):
             click.echo(f"  wrote {p}")
         if warnings:

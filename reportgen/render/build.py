@@ -60,7 +60,9 @@ def resolve_generated_at(value: dt.datetime | str | None) -> dt.datetime:
             value = dt.datetime.fromisoformat(text)
         except ValueError:
             raise InputError.single(
-                "--generated-at", f"not an ISO 8601 time: {value!r}", hint="write it like 2026-11-20T09:00:00Z"
+                "--generated-at",
+                f"not an ISO 8601 time: {value!r}",
+                hint="write it like 2026-11-20T09:00:00Z",
             ) from None
     if value is None:
         epoch = os.environ.get("SOURCE_DATE_EPOCH")
@@ -74,10 +76,14 @@ def resolve_generated_at(value: dt.datetime | str | None) -> dt.datetime:
 
 
 def results_bytes(results: Mapping[str, Any]) -> bytes:
-    return (json.dumps(results, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode("utf-8")
+    return (json.dumps(results, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode(
+        "utf-8"
+    )
 
 
-def compute_results(study: Study, ratings: Ratings, *, progress: Progress | None = None) -> dict[str, Any]:
+def compute_results(
+    study: Study, ratings: Ratings, *, progress: Progress | None = None
+) -> dict[str, Any]:
     """analyse + judge (when the verdict module is installed)."""
     from ..analysis import analyse
 
@@ -109,8 +115,18 @@ def _attachments(study: Study, ratings: Ratings | None, results_json: bytes) -> 
     add(study.path.name, study.path.read_bytes(), "Study definition", "Source")
     for s in ratings.sources if ratings else ():
         if s.role in ("ratings", "reference"):
-            add(s.path.name, s.path.read_bytes(), f"{s.role.capitalize()} file as read (SHA-256 {s.sha256})", "Data")
-    add("results.json", results_json, "Every figure of the report (schema reportgen-results/1)", "Supplement")
+            add(
+                s.path.name,
+                s.path.read_bytes(),
+                f"{s.role.capitalize()} file as read (SHA-256 {s.sha256})",
+                "Data",
+            )
+    add(
+        "results.json",
+        results_json,
+        "Every figure of the report (schema reportgen-results/1)",
+        "Supplement",
+    )
     return atts
 
 
@@ -136,7 +152,9 @@ def render_report(
     charts = report_charts(study, ratings, dict(results), verdict_view(results, rater_dicts(study)))
     timings["charts"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    ctx = build_context(study, ratings, results, generated_at=generated_at, draft=draft, charts=charts)
+    ctx = build_context(
+        study, ratings, results, generated_at=generated_at, draft=draft, charts=charts
+    )
     say("HTML")
     rendered = render_html(ctx, override_dir=study.templates_path)
     timings["html"] = time.perf_counter() - t0
@@ -147,7 +165,11 @@ def render_report(
 
         say("PDF")
         t0 = time.perf_counter()
-        pdf_bytes = render_pdf(rendered.print_html, generated_at=generated_at, attachments=_attachments(study, ratings, rjson))
+        pdf_bytes = render_pdf(
+            rendered.print_html,
+            generated_at=generated_at,
+            attachments=_attachments(study, ratings, rjson),
+        )
         timings["pdf"] = time.perf_counter() - t0
     return RenderedReport(
         study_id=study.id,
@@ -175,6 +197,7 @@ def write_folder(target: Path, files: Mapping[str, bytes], *, replace: bool = Fa
             f"{target} already exists: a built revision is never overwritten; "
             "raise study.revision in the study definition, or pass --replace for a draft"
         )
+    _clean_stale(parent, target.name)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".part", dir=parent))
     try:
         for name, data in sorted(files.items()):
@@ -206,6 +229,16 @@ def write_folder(target: Path, files: Mapping[str, bytes], *, replace: bool = Fa
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return target
+
+
+def _clean_stale(parent: Path, name: str, *, age_s: float = 3600.0) -> None:
+    """Remove temporary siblings an interrupted build left behind (older than ``age_s``)."""
+    now = time.time()
+    for p in parent.glob(f".{name}.*"):
+        if p.suffix in (".part", ".old") and p.is_dir():
+            with contextlib.suppress(OSError):
+                if now - p.stat().st_mtime > age_s:
+                    shutil.rmtree(p, ignore_errors=True)
 
 
 def _fsync_dir(path: Path) -> None:

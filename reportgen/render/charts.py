@@ -206,9 +206,19 @@ def interval_panels(
                 ax.hlines(y, pt.low, pt.high, color=SLATE, lw=2.2, zorder=2)
                 ax.vlines([pt.low, pt.high], y - 0.12, y + 0.12, color=SLATE, lw=1.0, zorder=2)
             if pt.estimate is not None:
-                ax.plot([pt.estimate], [y], marker="D", ms=5, color=INK, mec=PAPER, mew=0.7, zorder=3)
+                ax.plot(
+                    [pt.estimate], [y], marker="D", ms=5, color=INK, mec=PAPER, mew=0.7, zorder=3
+                )
             else:
-                ax.text((lo + hi) / 2, y, "undefined", ha="center", va="center", fontsize=7, style="italic")
+                ax.text(
+                    (lo + hi) / 2,
+                    y,
+                    "undefined",
+                    ha="center",
+                    va="center",
+                    fontsize=7,
+                    style="italic",
+                )
         ax.set_xlim(lo, hi)
         ax.set_ylim(-0.6, len(points) - 0.4)
         ax.set_yticks(ys)
@@ -243,7 +253,9 @@ def confusion_maps(
     cols = min(n, 3 if k <= 4 else 2)
     rows = (n + cols - 1) // cols
     side = 0.42 * k + 1.0
-    fig, axes = plt.subplots(rows, cols, figsize=(side * cols + 0.4, side * rows + 0.2), squeeze=False)
+    fig, axes = plt.subplots(
+        rows, cols, figsize=(side * cols + 0.4, side * rows + 0.2), squeeze=False
+    )
     short = [_short(lbl, 12) for lbl in labels]
     for idx in range(rows * cols):
         ax = axes[idx // cols][idx % cols]
@@ -258,7 +270,12 @@ def confusion_maps(
             for j in range(k):
                 v = int(m[i, j])
                 ax.text(
-                    j, i, str(v), ha="center", va="center", fontsize=7.5,
+                    j,
+                    i,
+                    str(v),
+                    ha="center",
+                    va="center",
+                    fontsize=7.5,
                     color=PAPER if v > 0.55 * vmax else INK,
                     fontweight="bold" if i == j else "normal",
                 )
@@ -304,8 +321,14 @@ def steps_apart(
         total = max(sum(counts), 1)
         share = [c / total for c in counts]
         ax.bar(
-            x - 0.4 + width * (s + 0.5), share, width, label=_short(label, 22),
-            color=fills[s % len(fills)], hatch=hatches[s % len(hatches)], edgecolor=INK, lw=0.5,
+            x - 0.4 + width * (s + 0.5),
+            share,
+            width,
+            label=_short(label, 22),
+            color=fills[s % len(fills)],
+            hatch=hatches[s % len(hatches)],
+            edgecolor=INK,
+            lw=0.5,
         )
     ax.set_xticks(x)
     ax.set_xticklabels([("+" if v > 0 else "") + str(v).replace("-", "−") for v in steps])
@@ -344,7 +367,10 @@ def item_map(
     k = len(categories)
     if ordinal:
         ramp = [
-            tuple(float(a + (b - a) * t) for a, b in zip(to_rgb(HEAT_LOW), to_rgb(HEAT_HIGH), strict=True))
+            tuple(
+                float(a + (b - a) * t)
+                for a, b in zip(to_rgb(HEAT_LOW), to_rgb(HEAT_HIGH), strict=True)
+            )
             for t in (np.linspace(0.0, 1.0, k) if k > 1 else [0.5])
         ]
         colours = ramp
@@ -364,7 +390,9 @@ def item_map(
     width = min(0.26 * (n_cols + extra) + 2.4, 6.8)
     fig, ax = plt.subplots(figsize=(width, height))
     masked = np.ma.masked_invalid(full)
-    ax.imshow(masked, cmap=cmap, vmin=0, vmax=k, aspect="auto", interpolation="nearest", rasterized=True)
+    ax.imshow(
+        masked, cmap=cmap, vmin=0, vmax=k, aspect="auto", interpolation="nearest", rasterized=True
+    )
     if reference is not None:
         ref = np.asarray(reference)
         for i in range(n_items):
@@ -372,7 +400,16 @@ def item_map(
                 continue
             wrong = np.nonzero((np.asarray(grid[i]) >= 0) & (np.asarray(grid[i]) != ref[i]))[0]
             if wrong.size:
-                ax.plot(wrong, [i] * wrong.size, ls="", marker="o", ms=2.2, color=OCHRE, mec=INK, mew=0.3)
+                ax.plot(
+                    wrong,
+                    [i] * wrong.size,
+                    ls="",
+                    marker="o",
+                    ms=2.2,
+                    color=OCHRE,
+                    mec=INK,
+                    mew=0.3,
+                )
     labels = [_short(c, 10) for c in columns] + (["", "reference"] if reference is not None else [])
     ax.set_xticks(range(n_cols + extra))
     ax.set_xticklabels(labels, rotation=90, fontsize=6.5)
@@ -383,13 +420,30 @@ def item_map(
     ax.spines[:].set_visible(False)
     from matplotlib.patches import Patch
 
-    handles = [Patch(facecolor=colours[i], edgecolor=INK, lw=0.4, label=_short(categories[i], 16)) for i in range(k)]
+    handles = [
+        Patch(facecolor=colours[i], edgecolor=INK, lw=0.4, label=_short(categories[i], 16))
+        for i in range(k)
+    ]
     handles.append(Patch(facecolor="white", edgecolor=INK, lw=0.4, label="missing"))
     if reference is not None:
         from matplotlib.lines import Line2D
 
-        handles.append(Line2D([], [], ls="", marker="o", ms=3, color=OCHRE, mec=INK, mew=0.3, label="differs from reference"))
-    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=6.5)
+        handles.append(
+            Line2D(
+                [],
+                [],
+                ls="",
+                marker="o",
+                ms=3,
+                color=OCHRE,
+                mec=INK,
+                mew=0.3,
+                label="differs from reference",
+            )
+        )
+    ax.legend(
+        handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=6.5
+    )
     fig.tight_layout()
     return Chart(name, _svg(fig), title, alt, note)
 
@@ -408,7 +462,9 @@ def _band_for(rules: Sequence[Any], group: str, key: str) -> Band | None:
             try:
                 p = float(r["pass_level"])
                 m = r.get("marginal_level")
-                return Band(p, float(m) if m is not None else None, str(r.get("better") or "higher"))
+                return Band(
+                    p, float(m) if m is not None else None, str(r.get("better") or "higher")
+                )
             except (TypeError, ValueError):
                 continue
     return None
@@ -443,10 +499,14 @@ def _points(per_rater: dict[str, Any], key: str, names: dict[str, str]) -> list[
     return pts
 
 
-def _range(points: Sequence[Point], band: Band | None, *, coefficient: bool, rate: bool = False) -> tuple[float, float]:
+def _range(
+    points: Sequence[Point], band: Band | None, *, coefficient: bool, rate: bool = False
+) -> tuple[float, float]:
     vals = [v for p in points for v in (p.estimate, p.low, p.high) if v is not None]
     if band is not None:
-        vals += [band.pass_level] + ([band.marginal_level] if band.marginal_level is not None else [])
+        vals += [band.pass_level] + (
+            [band.marginal_level] if band.marginal_level is not None else []
+        )
     if rate:
         hi = max(vals + [0.05])
         return 0.0, min(1.0, hi * 1.15 + 0.01)
@@ -455,7 +515,9 @@ def _range(points: Sequence[Point], band: Band | None, *, coefficient: bool, rat
     return lo, 1.0
 
 
-def report_charts(study: Any, ratings: Any, results: dict[str, Any], verdict: dict[str, Any] | None) -> dict[str, Chart]:
+def report_charts(
+    study: Any, ratings: Any, results: dict[str, Any], verdict: dict[str, Any] | None
+) -> dict[str, Chart]:
     """Every chart that applies to the study, by name."""
     charts: dict[str, Chart] = {}
     rules = _rules_of(study, verdict)
@@ -469,8 +531,13 @@ def report_charts(study: Any, ratings: Any, results: dict[str, Any], verdict: di
     for group, per, key, title, kind in (
         ("repeatability", rep, "agreement", "Repeatability: agreement rate", "p"),
         ("accuracy", acc, "effectiveness", "Accuracy: effectiveness", "p"),
-        ("accuracy", acc, "weighted_kappa" if study.scale == "ordinal" else "cohen_kappa",
-         "Accuracy: weighted kappa" if study.scale == "ordinal" else "Accuracy: Cohen's kappa", "k"),
+        (
+            "accuracy",
+            acc,
+            "weighted_kappa" if study.scale == "ordinal" else "cohen_kappa",
+            "Accuracy: weighted kappa" if study.scale == "ordinal" else "Accuracy: Cohen's kappa",
+            "k",
+        ),
         ("accuracy", acc, "miss_rate", "Miss rate", "r"),
         ("accuracy", acc, "false_alarm_rate", "False alarm rate", "r"),
     ):
@@ -478,7 +545,9 @@ def report_charts(study: Any, ratings: Any, results: dict[str, Any], verdict: di
         if not pts:
             continue
         band = _band_for(rules, group, key)
-        panels.append((title, pts, band, _range(pts, band, coefficient=kind == "k", rate=kind == "r")))
+        panels.append(
+            (title, pts, band, _range(pts, band, coefficient=kind == "k", rate=kind == "r"))
+        )
     if panels:
         charts["rater_figures"] = interval_panels(
             "rater-figures",
@@ -554,11 +623,16 @@ def report_charts(study: Any, ratings: Any, results: dict[str, Any], verdict: di
             if isinstance(it, dict)
         }
         keys = [agreement.get(item) for item in ratings.items]
-        order = sorted(range(ratings.n_items), key=lambda i: (1.0 if keys[i] is None else keys[i], ratings.items[i]))
+        order = sorted(
+            range(ratings.n_items),
+            key=lambda i: (1.0 if keys[i] is None else keys[i], ratings.items[i]),
+        )
         flat = ratings.codes.reshape(ratings.n_items, -1)
         grid = np.asarray(flat)[order].tolist()
         cols = [
-            f"{r} t{t + 1}" if ratings.n_trials > 1 else r for r in ratings.raters for t in range(ratings.n_trials)
+            f"{r} t{t + 1}" if ratings.n_trials > 1 else r
+            for r in ratings.raters
+            for t in range(ratings.n_trials)
         ]
         ref = None
         if ratings.reference is not None:

@@ -124,7 +124,9 @@ class ReportContext:
     conventions: list[dict[str, str]] = _help(
         "Counting conventions from the results: {topic, text}."
     )
-    interval_text: str = _help("How intervals were computed, with level, method, resamples and seed (one paragraph).")
+    interval_text: str = _help(
+        "How intervals were computed, with level, method, resamples and seed (one paragraph)."
+    )
     repeatability: list[dict[str, Any]] = _help(
         "Per rater (absent when there is one trial): {rater (rater dict), mixed_calls, items, measures: "
         "[{key, name, m, reading}]}."
@@ -144,7 +146,9 @@ class ReportContext:
     by_trial: list[dict[str, Any]] = _help(
         "Reproducibility per trial: [{trial, measures: [{key, name, m, reading}]}]."
     )
-    panel: list[dict[str, Any]] = _help("Panel accuracy measures present: [{key, name, m, reading}].")
+    panel: list[dict[str, Any]] = _help(
+        "Panel accuracy measures present: [{key, name, m, reading}]."
+    )
     confusion: list[dict[str, Any]] = _help(
         "Per rater confusion table against the reference: {rater, labels, rows (reference category) × "
         "columns (rating) counts, total, on_diagonal, top_mixups: [{reference, rated, count}]}."
@@ -182,11 +186,21 @@ class ReportContext:
     )
     bibliography: list[dict[str, str]] = _help("Bibliography of the methods used: [{key, text}].")
     glossary: list[dict[str, str]] = _help("Glossary: [{term, meaning}].")
-    generated_at: str = _help("Build time, ISO 8601 UTC (from --generated-at or SOURCE_DATE_EPOCH).")
+    generated_at: str = _help(
+        "Build time, ISO 8601 UTC (from --generated-at or SOURCE_DATE_EPOCH)."
+    )
     draft: bool = _help("True when built with --replace: DRAFT is printed on every page.")
-    safety_caution: str | None = _help("The safety caution text for safety-related studies, else None.")
+    safety_caution: str | None = _help(
+        "The safety caution text for safety-related studies, else None."
+    )
     running_head: str = _help("Running page header text: study id, revision, verdict.")
-    font_css: str = _help("The @font-face rules (shipped fonts as data: URIs); filled in by html.py.")
+    templates: dict[str, Any] = _help(
+        "Templates in use: {override (the study's override folder name, or None), files (override "
+        "files found there, sorted)}."
+    )
+    font_css: str = _help(
+        "The @font-face rules (shipped fonts as data: URIs); filled in by html.py."
+    )
 
 
 def context_help() -> dict[str, str]:
@@ -230,7 +244,16 @@ def _versions() -> list[dict[str, str]]:
     from importlib.metadata import PackageNotFoundError, version
 
     out = [{"name": "Python", "version": platform.python_version()}]
-    for dist in ("reportgen", "numpy", "scipy", "Jinja2", "matplotlib", "weasyprint", "pydyf", "fonttools"):
+    for dist in (
+        "reportgen",
+        "numpy",
+        "scipy",
+        "Jinja2",
+        "matplotlib",
+        "weasyprint",
+        "pydyf",
+        "fonttools",
+    ):
         try:
             out.append({"name": dist, "version": version(dist)})
         except PackageNotFoundError:
@@ -248,17 +271,28 @@ def rater_dicts(study: Study) -> dict[str, dict[str, str]]:
 
 def study_dict(study: Study, ratings: Ratings | None) -> dict[str, Any]:
     cats = [
-        {"index": i, "code": c.code, "label": c.label, "value": c.value, "description": c.description}
+        {
+            "index": i,
+            "code": c.code,
+            "label": c.label,
+            "value": c.value,
+            "description": c.description,
+        }
         for i, c in enumerate(study.categories)
     ]
     defect = None
     if study.defect_category is not None:
-        label = next((c.label for c in study.categories if c.code == study.defect_category), study.defect_category)
+        label = next(
+            (c.label for c in study.categories if c.code == study.defect_category),
+            study.defect_category,
+        )
         defect = {"code": study.defect_category, "label": label}
     if isinstance(study.weights, str):
         weights = study.weights
     else:
-        weights = "user-defined matrix: " + "; ".join(" ".join(f"{w:g}" for w in row) for row in study.weights)
+        weights = "user-defined matrix: " + "; ".join(
+            " ".join(f"{w:g}" for w in row) for row in study.weights
+        )
     if study.reference_path is not None:
         ref_source = f"reference file {study.reference_path.name}"
     elif ratings is not None and ratings.has_reference:
@@ -318,12 +352,16 @@ def _measure_label(path: str) -> str:
     last = parts[-1] if parts else str(path)
     info = MEASURES.get(last)
     name = LABELS.get(last) or (info.name if info else last.replace("_", " "))
-    group = {
-        "repeatability": "repeatability",
-        "accuracy": "accuracy",
-        "reproducibility": "rater-to-rater",
-        "panel_accuracy": "panel",
-    }.get(parts[0], parts[0]) if parts else ""
+    group = (
+        {
+            "repeatability": "repeatability",
+            "accuracy": "accuracy",
+            "reproducibility": "rater-to-rater",
+            "panel_accuracy": "panel",
+        }.get(parts[0], parts[0])
+        if parts
+        else ""
+    )
     return f"{name} ({group})" if group else name
 
 
@@ -342,7 +380,9 @@ def _criterion_rows(raw: Any, raters: Mapping[str, Mapping[str, str]]) -> list[d
             {
                 "measure": measure,
                 "label": _measure_label(measure),
-                "rater": raters.get(str(rater), {"id": rater, "name": rater, "display": rater}) if rater else None,
+                "rater": raters.get(str(rater), {"id": rater, "name": rater, "display": rater})
+                if rater
+                else None,
                 "judge": _first(r, "judge", default="estimate"),
                 "value": _first(r, "value", "judged", "judged_value"),
                 "estimate": _first(r, "estimate"),
@@ -353,13 +393,17 @@ def _criterion_rows(raw: Any, raters: Mapping[str, Mapping[str, str]]) -> list[d
                 "margin": _first(r, "margin"),
                 "note": _first(r, "note", "message", default=None)
                 or (_first(r["settle"], "text") if isinstance(r.get("settle"), Mapping) else None),
-                "kind": MEASURES[measure.split(".")[-1]].kind if measure.split(".")[-1] in MEASURES else "coefficient",
+                "kind": MEASURES[measure.split(".")[-1]].kind
+                if measure.split(".")[-1] in MEASURES
+                else "coefficient",
             }
         )
     return rows
 
 
-def verdict_view(results: Mapping[str, Any], raters: Mapping[str, Mapping[str, str]]) -> dict[str, Any] | None:
+def verdict_view(
+    results: Mapping[str, Any], raters: Mapping[str, Mapping[str, str]]
+) -> dict[str, Any] | None:
     v = results.get("verdict")
     if v is None:
         return None
@@ -392,7 +436,13 @@ def verdict_view(results: Mapping[str, Any], raters: Mapping[str, Mapping[str, s
                 f"The inspection must improve: {len(short)} of {len(rules)} criteria fall short"
                 + (f" and {len(marg)} are marginal." if marg else ".")
             )
-    return {"outcome": outcome, "sentence": sentence, "marginal_is": marginal_is, "source": source, "rules": rules}
+    return {
+        "outcome": outcome,
+        "sentence": sentence,
+        "marginal_is": marginal_is,
+        "source": source,
+        "rules": rules,
+    }
 
 
 def certification_view(
@@ -405,7 +455,11 @@ def certification_view(
         if isinstance(inner, Mapping):
             per = {str(k): v for k, v in inner.items() if isinstance(v, Mapping)}
         elif isinstance(inner, list):
-            per = {str(_first(x, "rater", "id", "rater_id")): x for x in inner if isinstance(x, Mapping)}
+            per = {
+                str(_first(x, "rater", "id", "rater_id")): x
+                for x in inner
+                if isinstance(x, Mapping)
+            }
         else:
             per = {str(k): v for k, v in raw.items() if isinstance(v, Mapping) and str(k) in raters}
     elif isinstance(raw, list):
@@ -420,10 +474,22 @@ def certification_view(
             {
                 "rater": rater,
                 "outcome": _first(c, "outcome", "status", "result"),
-                "reasons": [str(x) if not isinstance(x, Mapping) else str(_first(x, "text", "message", default=x)) for x in reasons],
-                "date": _first(c, "date", "certified_on", default=study.date.isoformat() if study.date else None),
+                "reasons": [
+                    str(x)
+                    if not isinstance(x, Mapping)
+                    else str(_first(x, "text", "message", default=x))
+                    for x in reasons
+                ],
+                "date": _first(
+                    c,
+                    "date",
+                    "certified_on",
+                    default=study.date.isoformat() if study.date else None,
+                ),
                 "valid_until": _first(c, "valid_until", "expires"),
-                "rules": _criterion_rows(_first(c, "checks", "rules", "criteria", default=[]), raters),
+                "rules": _criterion_rows(
+                    _first(c, "checks", "rules", "criteria", default=[]), raters
+                ),
             }
         )
     return blocks
@@ -441,19 +507,31 @@ def actions_view(results: Mapping[str, Any]) -> list[str]:
     return out
 
 
-def deciding_view(results: Mapping[str, Any], verdict: Mapping[str, Any] | None) -> list[dict[str, Any]]:
+def deciding_view(
+    results: Mapping[str, Any], verdict: Mapping[str, Any] | None
+) -> list[dict[str, Any]]:
     """Three or four figures for the first page."""
     picked: list[dict[str, Any]] = []
     if verdict and verdict["rules"]:
         rank = {"short": 0, "marginal": 1, "meets": 2}
         seen: set[str] = set()
-        for r in sorted(verdict["rules"], key=lambda r: (rank.get(str(r["outcome"]), 3), r["measure"])):
+        for r in sorted(
+            verdict["rules"], key=lambda r: (rank.get(str(r["outcome"]), 3), r["measure"])
+        ):
             m = _lookup(results, r["measure"])
             if m is None or r["measure"] in seen:
                 continue
             seen.add(r["measure"])
             label = r["label"] + (f" — {r['rater']['display']}" if r["rater"] else "")
-            picked.append({"label": label, "m": m, "kind": r["kind"], "reading": read_measure(m, r["measure"].split(".")[-1]), "outcome": r["outcome"]})
+            picked.append(
+                {
+                    "label": label,
+                    "m": m,
+                    "kind": r["kind"],
+                    "reading": read_measure(m, r["measure"].split(".")[-1]),
+                    "outcome": r["outcome"],
+                }
+            )
             if len(picked) == 4:
                 return picked
     for path in (
@@ -469,7 +547,15 @@ def deciding_view(results: Mapping[str, Any], verdict: Mapping[str, Any] | None)
         if m is None or any(p["m"] is m for p in picked):
             continue
         key = path.split(".")[-1]
-        picked.append({"label": _measure_label(path), "m": m, "kind": MEASURES[key].kind if key in MEASURES else "proportion", "reading": read_measure(m, key), "outcome": None})
+        picked.append(
+            {
+                "label": _measure_label(path),
+                "m": m,
+                "kind": MEASURES[key].kind if key in MEASURES else "proportion",
+                "reading": read_measure(m, key),
+                "outcome": None,
+            }
+        )
     if len(picked) < 3:
         reps = results.get("repeatability") or {}
         worst = None
@@ -479,7 +565,15 @@ def deciding_view(results: Mapping[str, Any], verdict: Mapping[str, Any] | None)
                 worst = (rid, est)
         if worst:
             m = reps[worst[0]]["agreement"]
-            picked.append({"label": f"Lowest rater repeatability ({worst[0]})", "m": m, "kind": "proportion", "reading": read_measure(m, "agreement"), "outcome": None})
+            picked.append(
+                {
+                    "label": f"Lowest rater repeatability ({worst[0]})",
+                    "m": m,
+                    "kind": "proportion",
+                    "reading": read_measure(m, "agreement"),
+                    "outcome": None,
+                }
+            )
     return picked[:4]
 
 
@@ -533,7 +627,11 @@ def _method(results: Mapping[str, Any]) -> list[dict[str, Any]]:
 
 def _interval_text(study: Study, results: Mapping[str, Any]) -> str:
     level = f"{100 * study.confidence:g} %"
-    prop = "Clopper–Pearson (exact)" if study.proportion_interval == "clopper-pearson" else "Wilson (score)"
+    prop = (
+        "Clopper–Pearson (exact)"
+        if study.proportion_interval == "clopper-pearson"
+        else "Wilson (score)"
+    )
     boot = results.get("bootstrap") or {}
     text = f"All intervals are two-sided {level} intervals. Proportions use the {prop} interval."
     if study.bootstrap_resamples > 0:
@@ -549,7 +647,9 @@ def _interval_text(study: Study, results: Mapping[str, Any]) -> str:
     return text
 
 
-def _confusion(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapping[str, str]]) -> list[dict[str, Any]]:
+def _confusion(
+    results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapping[str, str]]
+) -> list[dict[str, Any]]:
     labels_by_code = {c.code: c.label for c in study.categories}
     out = []
     for rid, e in (results.get("accuracy") or {}).items():
@@ -562,7 +662,11 @@ def _confusion(results: Mapping[str, Any], study: Study, raters: Mapping[str, Ma
             counts = [list(col) for col in zip(*counts, strict=True)] if counts else counts
         k = len(codes)
         mix = [
-            {"reference": labels_by_code.get(codes[i], codes[i]), "rated": labels_by_code.get(codes[j], codes[j]), "count": counts[i][j]}
+            {
+                "reference": labels_by_code.get(codes[i], codes[i]),
+                "rated": labels_by_code.get(codes[j], codes[j]),
+                "count": counts[i][j],
+            }
             for i in range(k)
             for j in range(k)
             if i != j and counts[i][j] > 0
@@ -581,7 +685,9 @@ def _confusion(results: Mapping[str, Any], study: Study, raters: Mapping[str, Ma
     return out
 
 
-def _ordinal(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapping[str, str]]) -> dict[str, Any] | None:
+def _ordinal(
+    results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapping[str, str]]
+) -> dict[str, Any] | None:
     o = results.get("ordinal")
     if study.scale != "ordinal" or not isinstance(o, Mapping):
         return None
@@ -598,8 +704,15 @@ def _ordinal(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapp
             "offsets": [int(offsets.get(str(s), 0)) for s in steps],
         }
 
-    rows = [row(e, raters.get(rid, {"id": rid, "name": rid, "display": rid})) for rid, e in (o.get("accuracy") or {}).items()]
-    panel = row(o["panel_accuracy"], {"id": "panel", "name": "Panel", "display": "Panel (all raters)"}) if isinstance(o.get("panel_accuracy"), Mapping) else None
+    rows = [
+        row(e, raters.get(rid, {"id": rid, "name": rid, "display": rid}))
+        for rid, e in (o.get("accuracy") or {}).items()
+    ]
+    panel = (
+        row(o["panel_accuracy"], {"id": "panel", "name": "Panel", "display": "Panel (all raters)"})
+        if isinstance(o.get("panel_accuracy"), Mapping)
+        else None
+    )
     pairs = o.get("reproducibility")
     pair_view = None
     if isinstance(pairs, Mapping):
@@ -608,7 +721,10 @@ def _ordinal(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapp
             "pairs": pairs.get("pairs"),
             "exact_share": pairs.get("exact_share"),
             "within_one_step_share": pairs.get("within_one_step_share"),
-            "steps_apart": [{"steps": int(s), "count": int(c)} for s, c in sorted(sa.items(), key=lambda x: int(x[0]))],
+            "steps_apart": [
+                {"steps": int(s), "count": int(c)}
+                for s, c in sorted(sa.items(), key=lambda x: int(x[0]))
+            ],
         }
     return {"steps": steps, "rows": rows, "panel": panel, "pairs": pair_view}
 
@@ -626,7 +742,9 @@ def _hard_items(results: Mapping[str, Any], study: Study) -> list[dict[str, Any]
         out.append(
             {
                 "id": str(iid),
-                "reference": labels.get(it.get("reference"), it.get("reference")) if it.get("reference") is not None else None,
+                "reference": labels.get(it.get("reference"), it.get("reference"))
+                if it.get("reference") is not None
+                else None,
                 "agreement": it.get("agreement"),
                 "ratings": it.get("ratings"),
                 "matching_reference": it.get("matching_reference"),
@@ -648,7 +766,9 @@ def _num(x: Any, digits: int = 2) -> str:
     return fmt_num(x, digits)
 
 
-def _caveats(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapping[str, str]]) -> list[dict[str, str]]:
+def _caveats(
+    results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapping[str, str]]
+) -> list[dict[str, str]]:
     cav = results.get("caveats") or {}
     labels = {c.code: c.label for c in study.categories}
     out: list[dict[str, str]] = []
@@ -687,8 +807,9 @@ def _caveats(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapp
         if e.get("kappa_max") is not None:
             parts.append(
                 f"the highest kappa these category frequencies allow is {_num(e['kappa_max'])}, so kappa cannot reach 1 "
-                "unless the rater uses the categories as often as the reference does" if e["kappa_max"] < 0.999 else
-                "the category frequencies allow a kappa of 1"
+                "unless the rater uses the categories as often as the reference does"
+                if e["kappa_max"] < 0.999
+                else "the category frequencies allow a kappa of 1"
             )
         if e.get("pabak") is not None:
             parts.append(
@@ -710,7 +831,9 @@ def _caveats(results: Mapping[str, Any], study: Study, raters: Mapping[str, Mapp
                     "(scaled from this study, assuming agreement and design stay the same)."
                 )
             else:
-                text += f"That is within the target half-width of ±{_num(prec['target_half_width'])}."
+                text += (
+                    f"That is within the target half-width of ±{_num(prec['target_half_width'])}."
+                )
         out.append({"title": "Interval width and sample size", "text": text})
     miss = cav.get("missing")
     if isinstance(miss, Mapping):
@@ -735,7 +858,18 @@ def _sources(study: Study, ratings: Ratings | None) -> list[dict[str, Any]]:
             size = study.path.stat().st_size
         except OSError:
             size = None
-        out.append({"role": "study", "name": study.path.name, "sha256": _sha256(study.path), "size": size, "rows": None, "encoding": None, "delimiter": None, "layout": None})
+        out.append(
+            {
+                "role": "study",
+                "name": study.path.name,
+                "sha256": _sha256(study.path),
+                "size": size,
+                "rows": None,
+                "encoding": None,
+                "delimiter": None,
+                "layout": None,
+            }
+        )
     for s in ratings.sources if ratings else ():
         out.append(
             {
@@ -745,18 +879,26 @@ def _sources(study: Study, ratings: Ratings | None) -> list[dict[str, Any]]:
                 "size": s.size,
                 "rows": s.rows if s.role != "study" else None,
                 "encoding": s.encoding,
-                "delimiter": {",": "comma", ";": "semicolon", "\t": "tab"}.get(s.delimiter or "", s.delimiter),
+                "delimiter": {",": "comma", ";": "semicolon", "\t": "tab"}.get(
+                    s.delimiter or "", s.delimiter
+                ),
                 "layout": s.layout,
             }
         )
     return out
 
 
-def _ratings_table(ratings: Ratings | None, study: Study, results: Mapping[str, Any]) -> dict[str, Any]:
+def _ratings_table(
+    ratings: Ratings | None, study: Study, results: Mapping[str, Any]
+) -> dict[str, Any]:
     if ratings is None:
         return {"columns": [], "rows": [], "truncated": False, "total_items": 0}
     codes = ratings.categories
-    cols = [f"{r} t{t + 1}" if ratings.n_trials > 1 else r for r in ratings.raters for t in range(ratings.n_trials)]
+    cols = [
+        f"{r} t{t + 1}" if ratings.n_trials > 1 else r
+        for r in ratings.raters
+        for t in range(ratings.n_trials)
+    ]
     rows = []
     n_show = min(ratings.n_items, RATINGS_TABLE_LIMIT)
     for i in range(n_show):
@@ -765,7 +907,13 @@ def _ratings_table(ratings: Ratings | None, study: Study, results: Mapping[str, 
         if ratings.reference is not None and int(ratings.reference[i]) >= 0:
             ref = codes[int(ratings.reference[i])]
         rows.append({"item": ratings.items[i], "cells": cells, "reference": ref})
-    return {"columns": cols, "rows": rows, "truncated": ratings.n_items > n_show, "total_items": ratings.n_items, "has_reference": ratings.reference is not None}
+    return {
+        "columns": cols,
+        "rows": rows,
+        "truncated": ratings.n_items > n_show,
+        "total_items": ratings.n_items,
+        "has_reference": ratings.reference is not None,
+    }
 
 
 def build_context(
@@ -786,16 +934,30 @@ def build_context(
             continue
         sections.append({"anchor": anchor, "number": len(sections) + 1, "title": title})
     repeat = [
-        {"rater": raters.get(rid, {"id": rid, "name": rid, "display": rid}), "mixed_calls": e.get("mixed_calls"), "items": e.get("items"), "measures": _rows(e, REPEAT_ORDER)}
+        {
+            "rater": raters.get(rid, {"id": rid, "name": rid, "display": rid}),
+            "mixed_calls": e.get("mixed_calls"),
+            "items": e.get("items"),
+            "measures": _rows(e, REPEAT_ORDER),
+        }
         for rid, e in (results.get("repeatability") or {}).items()
     ]
     acc = [
-        {"rater": raters.get(rid, {"id": rid, "name": rid, "display": rid}), "counts": e.get("counts") or {}, "measures": _rows(e, ACCURACY_ORDER)}
+        {
+            "rater": raters.get(rid, {"id": rid, "name": rid, "display": rid}),
+            "counts": e.get("counts") or {},
+            "measures": _rows(e, ACCURACY_ORDER),
+        }
         for rid, e in (results.get("accuracy") or {}).items()
     ]
     repro_raw = results.get("reproducibility") or {}
     by_cat = [
-        {"code": c.code, "label": c.label, "m": repro_raw["fleiss_kappa_by_category"][c.code], "reading": read_measure(repro_raw["fleiss_kappa_by_category"][c.code], "fleiss_kappa")}
+        {
+            "code": c.code,
+            "label": c.label,
+            "m": repro_raw["fleiss_kappa_by_category"][c.code],
+            "reading": read_measure(repro_raw["fleiss_kappa_by_category"][c.code], "fleiss_kappa"),
+        }
         for c in study.categories
         if c.code in (repro_raw.get("fleiss_kappa_by_category") or {})
     ]
@@ -808,7 +970,8 @@ def build_context(
             "rows": [[(pw.get(a) or {}).get(b) if a != b else None for b in ids] for a in ids],
         }
     by_trial = [
-        {"trial": t, "measures": _rows(e, REPRO_ORDER)} for t, e in sorted((repro_raw.get("by_trial") or {}).items(), key=lambda x: int(x[0]))
+        {"trial": t, "measures": _rows(e, REPRO_ORDER)}
+        for t, e in sorted((repro_raw.get("by_trial") or {}).items(), key=lambda x: int(x[0]))
     ]
     conventions = [{"topic": k, "text": v} for k, v in (results.get("conventions") or {}).items()]
     miss = (results.get("caveats") or {}).get("missing") or {}
@@ -822,8 +985,13 @@ def build_context(
     method = _method(results)
     used_keys = {s for m in method for s in MEASURES[m["key"]].source}
     used_keys |= {"efron1993"} if study.bootstrap_resamples > 0 else set()
-    used_keys |= {"clopper1934"} if study.proportion_interval == "clopper-pearson" else {"wilson1927"}
-    if any("pabak" in (e or {}) for e in ((results.get("caveats") or {}).get("accuracy") or {}).values()):
+    used_keys |= (
+        {"clopper1934"} if study.proportion_interval == "clopper-pearson" else {"wilson1927"}
+    )
+    if any(
+        "pabak" in (e or {})
+        for e in ((results.get("caveats") or {}).get("accuracy") or {}).values()
+    ):
         used_keys |= {"byrt1993"}
     used_keys |= {"feinstein1990"}
     outcome = verdict["outcome"] if verdict else "no verdict"
@@ -850,7 +1018,10 @@ def build_context(
         caveats=_caveats(results, study, raters),
         certification=certification_view(results, study, raters),
         actions=actions_view(results),
-        warnings=[w if isinstance(w, Mapping) else {"measure": "", "message": str(w)} for w in results.get("warnings") or []],
+        warnings=[
+            w if isinstance(w, Mapping) else {"measure": "", "message": str(w)}
+            for w in results.get("warnings") or []
+        ],
         sources=_sources(study, ratings),
         completeness=completeness,
         software=_versions(),
@@ -862,5 +1033,14 @@ def build_context(
         draft=draft,
         safety_caution=SAFETY_CAUTION if study.safety_related else None,
         running_head=head,
+        templates=_templates(study),
         font_css="",
     )
+
+
+def _templates(study: Study) -> dict[str, Any]:
+    folder = study.templates_path
+    if folder is None:
+        return {"override": None, "files": []}
+    files = sorted(p.name for p in Path(folder).iterdir() if p.is_file()) if Path(folder).is_dir() else []
+    return {"override": Path(folder).name, "files": files}

@@ -27,8 +27,10 @@ from .environment import builtin_template_dir, make_environment
 FONT_SENTINEL = "/*reportgen:font-face*/"
 
 #: characters always kept in the font subsets (labels the CSS and templates may add)
-BASE_CHARS = "".join(chr(c) for c in range(0x20, 0x7F)) + "".join(chr(c) for c in range(0xA0, 0x100)) + (
-    "–—‘’‚“”„•…‰′″‹›€−±×÷≤≥≈≠√∑·→←↑↓✓✗κατχρπΣΔαβγδεμσωₒₑₖᵢⱼ₀₁₂₃²³ "
+BASE_CHARS = (
+    "".join(chr(c) for c in range(0x20, 0x7F))
+    + "".join(chr(c) for c in range(0xA0, 0x100))
+    + ("–—‘’‚“”„•…‰′″‹›€−±×÷≤≥≈≠√∑·→←↑↓✓✗κατχρπΣΔαβγδεμσωₒₑₖᵢⱼ₀₁₂₃²³ ")
 )
 
 FACES = (
@@ -43,7 +45,9 @@ FALLBACK = ("Report Sans Wide", "normal", "DroidSansFallback.ttf")
 @dataclass(frozen=True)
 class RenderedHtml:
     html: str  #: the self-contained HTML file (fonts embedded as data: URIs)
-    print_html: str  #: the same document with the fonts referenced from the package (for WeasyPrint)
+    print_html: (
+        str  #: the same document with the fonts referenced from the package (for WeasyPrint)
+    )
     templates: tuple[str, ...]  # templates used (for the appendix and the tests)
 
 
@@ -85,7 +89,9 @@ def _cmap(name: str) -> frozenset[int]:
 
     path = font_path(name)
     if not path.is_file():
-        raise RenderError(f"the shipped font {name} is missing from {path.parent}; reinstall reportgen")
+        raise RenderError(
+            f"the shipped font {name} is missing from {path.parent}; reinstall reportgen"
+        )
     with TTFont(str(path), lazy=True) as font:  # reads the cmap table only
         return frozenset(font.getBestCmap())
 
@@ -171,7 +177,9 @@ def font_face_css(main_chars: str, wide_chars: str, *, embed: bool = True) -> st
         family, weight, name = FALLBACK
         wide_src = src(name, wide_chars)
         for w in ("normal", "bold"):
-            rules.append(f'@font-face {{ font-family: "{family}"; font-weight: {w}; font-style: normal; src: {wide_src}; }}')
+            rules.append(
+                f'@font-face {{ font-family: "{family}"; font-weight: {w}; font-style: normal; src: {wide_src}; }}'
+            )
     return "\n".join(rules)
 
 
@@ -193,16 +201,22 @@ def render_html(ctx: ReportContext, *, override_dir: Path | None = None) -> Rend
     try:
         html = env.get_template("report.html").render(**values)
     except jinja2.TemplateSyntaxError as exc:
-        raise RenderError(f"{exc.filename or exc.name}:{exc.lineno}: template error: {exc.message}") from None
+        raise RenderError(
+            f"{exc.filename or exc.name}:{exc.lineno}: template error: {exc.message}"
+        ) from None
     except jinja2.UndefinedError as exc:
-        raise RenderError(f"template error: {exc.message} (a template uses a name the report context lacks)") from None
+        raise RenderError(
+            f"template error: {exc.message} (a template uses a name the report context lacks)"
+        ) from None
     except jinja2.TemplateNotFound as exc:
         raise RenderError(f"template not found: {exc.name}") from None
     except jinja2.exceptions.SecurityError as exc:
         raise RenderError(f"an override template tried something not allowed: {exc}") from None
     main, wide = check_glyphs(document_text(html))
     if html.count(FONT_SENTINEL) != 1:
-        raise RenderError("the report template must include {{ font_css }} exactly once, inside <style>")
+        raise RenderError(
+            "the report template must include {{ font_css }} exactly once, inside <style>"
+        )
     return RenderedHtml(
         html.replace(FONT_SENTINEL, font_face_css(main, wide, embed=True)),
         html.replace(FONT_SENTINEL, font_face_css(main, wide, embed=False)),

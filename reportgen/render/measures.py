@@ -54,7 +54,9 @@ MEASURES: dict[str, MeasureInfo] = {
         MeasureInfo(
             "false_alarm_rate",
             "False alarm rate",
-            ("P(false alarm) = ratings of conforming items called defect / ratings of conforming items",),
+            (
+                "P(false alarm) = ratings of conforming items called defect / ratings of conforming items",
+            ),
             "A false alarm costs scrap or rework of good items; it shows a rater who is too strict.",
             ("clopper1934",),
             "rate",
@@ -104,7 +106,10 @@ MEASURES: dict[str, MeasureInfo] = {
         MeasureInfo(
             "krippendorff_alpha",
             "Krippendorff's alpha",
-            ("α = 1 − Dₒ / Dₑ", "Dₒ, Dₑ: observed and expected disagreement under the scale's distance δ²"),
+            (
+                "α = 1 − Dₒ / Dₑ",
+                "Dₒ, Dₑ: observed and expected disagreement under the scale's distance δ²",
+            ),
             "Works with missing ratings and with the scale's own notion of distance (nominal, "
             "ordinal or interval).",
             ("krippendorff2004", "hayes2007"),
@@ -138,7 +143,9 @@ MEASURES: dict[str, MeasureInfo] = {
         MeasureInfo(
             "conger_kappa",
             "Conger's kappa",
-            ("κ_C = (pₒ − pₑ) / (1 − pₑ) ,  pₑ from each rater's own category margins, over all rater pairs",),
+            (
+                "κ_C = (pₒ − pₑ) / (1 − pₑ) ,  pₑ from each rater's own category margins, over all rater pairs",
+            ),
             "A multi-rater kappa that keeps each rater's own tendencies, where Fleiss' kappa pools them.",
             ("conger1980",),
             "coefficient",
@@ -230,8 +237,14 @@ GLOSSARY: tuple[tuple[str, str], ...] = (
     ("panel", "all raters of the study taken together"),
     ("repeatability", "a rater agreeing with their own ratings of the same item in other trials"),
     ("reproducibility", "different raters agreeing with each other"),
-    ("chance-corrected", "a coefficient that subtracts the agreement the category frequencies alone would give: 0 = chance, 1 = perfect"),
-    ("interval", "the confidence interval: the range of true values the data are consistent with, at the stated level"),
+    (
+        "chance-corrected",
+        "a coefficient that subtracts the agreement the category frequencies alone would give: 0 = chance, 1 = perfect",
+    ),
+    (
+        "interval",
+        "the confidence interval: the range of true values the data are consistent with, at the stated level",
+    ),
     ("criterion", "one acceptance rule: a measure, a pass level and a marginal level"),
     ("criterion outcome", "meets, marginal or short"),
     ("verdict", "the study's overall outcome: PASS or IMPROVE"),

@@ -94,20 +94,35 @@ def render_pdf(
     """Render finished HTML to PDF/A-3b bytes; raise RenderError on any refused URL or warning."""
     import weasyprint
 
-    for ext, mime in ((".yaml", "application/yaml"), (".yml", "application/yaml"), (".csv", "text/csv"), (".json", "application/json")):
+    for ext, mime in (
+        (".yaml", "application/yaml"),
+        (".yml", "application/yaml"),
+        (".csv", "text/csv"),
+        (".json", "application/json"),
+    ):
         mimetypes.add_type(mime, ext)
-    when = generated_at.astimezone(dt.UTC).replace(tzinfo=None) if generated_at.tzinfo else generated_at
+    when = (
+        generated_at.astimezone(dt.UTC).replace(tzinfo=None)
+        if generated_at.tzinfo
+        else generated_at
+    )
     fetcher = make_fetcher()
     handler = _Collect()
     logger = logging.getLogger("weasyprint")
     logger.addHandler(handler)
     try:
         root = base_url or asset_root()
-        doc = weasyprint.HTML(string=html, base_url=root.as_uri() + "/", url_fetcher=fetcher).render()
+        doc = weasyprint.HTML(
+            string=html, base_url=root.as_uri() + "/", url_fetcher=fetcher
+        ).render()
         atts = [
             weasyprint.Attachment(
-                string=a.data, name=a.name, description=a.description,
-                created=when, modified=when, relationship=a.relationship,
+                string=a.data,
+                name=a.name,
+                description=a.description,
+                created=when,
+                modified=when,
+                relationship=a.relationship,
             )
             for a in attachments
         ]
@@ -133,7 +148,9 @@ def render_pdf(
     if serious:
         raise RenderError("PDF rendering reported problems: " + "; ".join(serious[:5]))
     if fetcher.refused:
-        raise RenderError("the report refers to a resource that is not allowed: " + ", ".join(fetcher.refused[:3]))
+        raise RenderError(
+            "the report refers to a resource that is not allowed: " + ", ".join(fetcher.refused[:3])
+        )
     return bytes(pdf)
 
 
@@ -141,5 +158,13 @@ def _is_serious(message: str) -> bool:
     low = message.lower()
     return any(
         s in low
-        for s in ("cannot be loaded", "notdef", "failed to load", "refused", "blocked", "failed to render", "unsupported")
+        for s in (
+            "cannot be loaded",
+            "notdef",
+            "failed to load",
+            "refused",
+            "blocked",
+            "failed to render",
+            "unsupported",
+        )
     )

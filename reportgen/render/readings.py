@@ -47,7 +47,7 @@ def _undefined(m: Any) -> str | None:
 
 
 def read_proportion(m: Any, what: str = "items agree") -> str:
-    """"41 of 50 items agree (82.0 %)"; the interval is in its own column."""
+    """ "41 of 50 items agree (82.0 %)"; the interval is in its own column."""
     u = _undefined(m)
     if u:
         return u
@@ -109,7 +109,9 @@ def read_rank(m: Any) -> str:
     if u:
         return u
     v = float(_value(m) or 0.0)
-    word = "strong" if v >= 0.7 else "moderate" if v >= 0.4 else "weak" if v >= 0.1 else "little or no"
+    word = (
+        "strong" if v >= 0.7 else "moderate" if v >= 0.4 else "weak" if v >= 0.1 else "little or no"
+    )
     return f"{word} agreement on the order of the items"
 
 

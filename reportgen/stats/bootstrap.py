@@ -187,7 +187,11 @@ def _replicate_sums(
 ) -> np.ndarray:
     """``W @ F`` for all replicates, in chunks of replicates to bound memory."""
     out = np.empty((resamples, f.shape[1]), dtype=np.float64)
-    step = max(1, min(resamples, _CHUNK_CELLS // max(1, f.shape[0])))
+    # Bound the replicate × pattern cells, and the single-item top-up draws of the Poissonised
+    # sampler (about 2 sqrt(n) per replicate), per chunk.
+    top_up = 2.0 * np.sqrt(float(mult.sum())) + 1.0
+    step = int(min(resamples, _CHUNK_CELLS // max(1, f.shape[0]), (_CHUNK_CELLS // 4) / top_up))
+    step = max(1, step)
     order = np.argsort(mult, kind="stable")
     f, mult = f[order], mult[order]  # sums do not depend on the order of the patterns
     sampler = _PatternSampler(mult)

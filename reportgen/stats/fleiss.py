@@ -60,6 +60,7 @@ __all__ = [
     "fleiss_kappa_by_category_from_sums",
     "fleiss_kappa_features",
     "fleiss_kappa_from_sums",
+    "fnl_null_variance",
 ]
 
 _TINY = 1e-14
@@ -88,14 +89,22 @@ def fleiss_kappa_features(counts: np.ndarray) -> np.ndarray:
     if c.ndim != 2:
         raise ValueError(f"counts must be an items × categories table, got shape {c.shape}")
     m = c.sum(axis=1)
+    k = c.shape[1]
+    out = np.empty((c.shape[0], 3 + 2 * k), dtype=np.float64)
+    if c.shape[0] and m.min() >= 2:  # fast path: every item has two or more ratings
+        inv_pairs = (1.0 / (m * (m - 1.0)))[:, None]
+        out[:, 0] = 1.0
+        out[:, 2] = 1.0
+        np.divide(c, m[:, None], out=out[:, 3 : 3 + k])
+        np.multiply(c * (m[:, None] - c), inv_pairs, out=out[:, 3 + k :])
+        out[:, 1] = 1.0 - out[:, 3 + k :].sum(axis=1)  # a_i = 1 - sum_j d_ij
+        return out
     pairable = m >= 2
     rated = m >= 1
     pairs = np.where(pairable, m * (m - 1.0), 1.0)
-    out = np.empty((c.shape[0], 3 + 2 * c.shape[1]), dtype=np.float64)
     out[:, 0] = pairable
     out[:, 1] = np.where(pairable, (c * (c - 1.0)).sum(axis=1) / pairs, 0.0)
     out[:, 2] = rated
-    k = c.shape[1]
     out[:, 3 : 3 + k] = np.where(rated[:, None], c / np.where(rated, m, 1.0)[:, None], 0.0)
     out[:, 3 + k :] = np.where(pairable[:, None], c * (m[:, None] - c) / pairs[:, None], 0.0)
     return out
@@ -118,6 +127,14 @@ def fleiss_kappa_from_sums(sums: np.ndarray) -> np.ndarray:
     Validated against: Fleiss (1971) data, Wikipedia "Fleiss' kappa" example, statsmodels, irrCAC.
     """
     e, a, u, pi_sum, _ = _split(sums)
+    if pi_sum.ndim == 1:  # one study: plain float arithmetic, same formula
+        if e <= 0 or u <= 0:
+            return np.float64(np.nan)
+        pi1 = pi_sum / u
+        pe1 = float(pi1 @ pi1)
+        if 1.0 - pe1 <= _TINY:
+            return np.float64(np.nan)
+        return np.float64((float(a) / float(e) - pe1) / (1.0 - pe1))
     with np.errstate(divide="ignore", invalid="ignore"):
         pa = a / e
         pi = pi_sum / u[..., None]
@@ -133,6 +150,15 @@ def fleiss_kappa_by_category_from_sums(sums: np.ndarray) -> np.ndarray:
     collapsed two-category table.
     """
     e, _, u, pi_sum, d = _split(sums)
+    if pi_sum.ndim == 1:  # one study
+        if e <= 0 or u <= 0:
+            return np.full(pi_sum.shape, np.nan)
+        pi1 = pi_sum / u
+        pq1 = pi1 * (1.0 - pi1)
+        ok = pq1 > _TINY
+        out = np.full(pi_sum.shape, np.nan)
+        np.divide(d / e, pq1, out=out, where=ok)
+        return np.subtract(1.0, out, out=out, where=ok)
     with np.errstate(divide="ignore", invalid="ignore"):
         pi = pi_sum / u[..., None]
         pq = pi * (1.0 - pi)
@@ -165,12 +191,14 @@ def fnl_null_variance(
     pq = (p * q).sum(axis=-1)
     v2 = pq**2 - (p * q * (q - p)).sum(axis=-1)
     zeta1 = (p**3).sum(axis=-1) - ((p**2).sum(axis=-1)) ** 2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        deg = 2.0 * v2 * sum_inv_pairs / n_pairable**2
-        lin = 4.0 * zeta1 * (
-            (1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2
-        )
-        return (deg + lin) / pq**2
+    out = np.full(pq.shape, np.nan)
+    if n_pairable <= 0 or n_rated <= 0:
+        return out
+    deg = 2.0 * v2 * (sum_inv_pairs / n_pairable**2)
+    lin = 4.0 * zeta1 * (
+        (1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2
+    )
+    return np.divide(deg + lin, pq**2, out=out, where=pq > 0)
 
 
 def fleiss_kappa(
@@ -199,13 +227,17 @@ def fleiss_kappa(
 
     n_pairable = int(sums[0])
     n_rated = int(sums[2])
-    n_unrated = int(w[m == 0].sum())
-    n_single = int(w[m == 1].sum())
+    everyone_pairable = n_pairable == rows.shape[0] and w.min() > 0
+    if everyone_pairable:
+        n_unrated = n_single = 0
+    else:
+        n_unrated = int(w[m == 0].sum())
+        n_single = int(w[m == 1].sum())
     n_ratings = int(w @ m)
-    all_alike = int(w[(m >= 2) & (rows.max(axis=1) == m)].sum())
+    all_alike = int(w @ ((m >= 2) & (rows.max(axis=1) == m)))
     pi = sums[3 : 3 + k] / n_rated if n_rated else np.full(k, np.nan)
     pa = sums[1] / n_pairable if n_pairable else float("nan")
-    pe = float((pi * pi).sum())
+    pe = float(pi @ pi)
 
     notes: list[str] = []
     if n_unrated:
@@ -221,12 +253,18 @@ def fleiss_kappa(
     elif 1.0 - pe <= _TINY:
         why = "Fleiss' kappa is undefined: every rating is in one category, so chance agreement is 1."
 
-    sum_inv_pairs = float(w @ np.where(m >= 2, 1.0 / np.where(m >= 2, m * (m - 1), 1), 0.0))
+    if everyone_pairable:
+        sum_inv_pairs = float(w @ (1.0 / (m * (m - 1.0))))
+        sum_inv_r_pairable = float(w @ (1.0 / m))
+    else:
+        pair_ok = m >= 2
+        sum_inv_pairs = float(w @ np.where(pair_ok, 1.0 / np.where(pair_ok, m * (m - 1), 1), 0.0))
+        sum_inv_r_pairable = float(w @ np.where(pair_ok, 1.0 / np.maximum(m, 1), 0.0))
     null_args = {
         "n_pairable": float(n_pairable),
         "n_rated": float(n_rated),
         "sum_inv_pairs": sum_inv_pairs,
-        "sum_inv_r_pairable": float(w @ np.where(m >= 2, 1.0 / np.maximum(m, 1), 0.0)),
+        "sum_inv_r_pairable": sum_inv_r_pairable,
         "n_single": float(n_single),
     }
     extra_common = {
@@ -252,35 +290,36 @@ def fleiss_kappa(
                                     level_notes, extra_common),
         )
 
-    keep = m >= 1
-    rr, ww, mm = rows[keep], w[keep], m[keep]
-    pairable = mm >= 2
+    if not everyone_pairable:  # items without ratings take no part in the variance
+        keep = m >= 1
+        feats, w, m = feats[keep], w[keep], m[keep]
+    e_i = feats[:, 0]
+    pi_i = feats[:, 3 : 3 + k]
+    d_i = feats[:, 3 + k :]
     # Overall: Gwet's linearised variance over the rated items (patterns weighted).
     var0 = float(fnl_null_variance(pi, **null_args))
-    a_i = feats[keep, 1]
-    pe_i = (rr @ pi) / mm
-    kstar = (n_rated / n_pairable) * (a_i - pe * pairable) / (1.0 - pe) - 2.0 * (1.0 - kappa) * (
-        pe_i - pe
-    ) / (1.0 - pe)
-    var = _weighted_var_of_mean(kstar, ww, kappa, n_rated)
+    pe_i = pi_i @ pi
+    kstar = (n_rated / n_pairable) * (feats[:, 1] - pe * e_i) / (1.0 - pe) - 2.0 * (
+        1.0 - kappa
+    ) * (pe_i - pe) / (1.0 - pe)
+    var = _weighted_var_of_mean(kstar, w, kappa, n_rated)
     overall = _estimate(
         kappa, var, var0, zc, level, n_rated, all_alike, level_notes,
         {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi.tolist()},
     )
-    # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table.
+    # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table, whose
+    # item agreement is 1 - 2 d_ij and chance agreement p_j^2 + q_j^2.
+    qi = 1.0 - pi
+    var0_j = fnl_null_variance(np.stack([pi, qi], axis=-1), **null_args)
+    pe_j = pi * pi + qi * qi
     with np.errstate(divide="ignore", invalid="ignore"):
-        qi = 1.0 - pi
-        var0_j = fnl_null_variance(np.stack([pi, qi], axis=-1), **null_args)
-        mcol = mm[:, None]
-        rest = mcol - rr
-        pairs = np.where(pairable, mm * (mm - 1.0), 1.0)[:, None]
-        a_ij = np.where(pairable[:, None], (rr * (rr - 1.0) + rest * (rest - 1.0)) / pairs, 0.0)
-        pe_j = pi * pi + qi * qi
-        pe_ij = (rr * pi + rest * qi) / mcol
-        kstar_j = (n_rated / n_pairable) * (a_ij - pe_j * pairable[:, None]) / (1.0 - pe_j) - (
-            2.0 * (1.0 - kappa_j) * (pe_ij - pe_j) / (1.0 - pe_j)
+        inv = 1.0 / (1.0 - pe_j)
+        a_ij = e_i[:, None] - 2.0 * d_i
+        pe_ij = qi + pi_i * (pi - qi)
+        kstar_j = (n_rated / n_pairable) * (a_ij - pe_j * e_i[:, None]) * inv - (
+            2.0 * (1.0 - kappa_j) * (pe_ij - pe_j) * inv
         )
-        var_j = (ww @ (kstar_j - kappa_j) ** 2) / (n_rated * (n_rated - 1.0))
+        var_j = (w @ (kstar_j - kappa_j) ** 2) / (n_rated * (n_rated - 1.0))
     by_cat = _categories(kappa_j, pi, var_j, var0_j, n_pairable, n_rated, zc, level,
                          level_notes, extra_common)
     return FleissResult(overall=overall, by_category=by_cat)

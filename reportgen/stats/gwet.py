@@ -74,10 +74,16 @@ def _agreement_features(counts: np.ndarray, w: np.ndarray) -> np.ndarray:
     if c.ndim != 2 or c.shape[1] != w.shape[0]:
         raise ValueError(f"counts must be an items × {w.shape[0]} table, got shape {c.shape}")
     m = c.sum(axis=1)
+    out = np.empty((c.shape[0], 3 + c.shape[1]), dtype=np.float64)
+    if c.shape[0] and m.min() >= 2:  # fast path: every item has two or more ratings
+        out[:, 0] = 1.0
+        out[:, 1] = (c * (c @ w.T - 1.0)).sum(axis=1) / (m * (m - 1.0))
+        out[:, 2] = 1.0
+        np.divide(c, m[:, None], out=out[:, 3:])
+        return out
     pairable = m >= 2
     rated = m >= 1
     pairs = np.where(pairable, m * (m - 1.0), 1.0)
-    out = np.empty((c.shape[0], 3 + c.shape[1]), dtype=np.float64)
     out[:, 0] = pairable
     out[:, 1] = np.where(pairable, (c * (c @ w.T - 1.0)).sum(axis=1) / pairs, 0.0)
     out[:, 2] = rated
@@ -115,6 +121,14 @@ def _ac_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
     if k < 2:
         return np.full(s.shape[:-1], np.nan)
     e, a, u, pi_sum = s[..., 0], s[..., 1], s[..., 2], s[..., 3:]
+    if s.ndim == 1:  # one study: plain float arithmetic, same formula
+        if e <= 0 or u <= 0:
+            return np.float64(np.nan)
+        pi1 = pi_sum / u
+        pe1 = float(w.sum()) / (k * (k - 1)) * float(pi1 @ (1.0 - pi1))
+        if 1.0 - pe1 <= _TINY:
+            return np.float64(np.nan)
+        return np.float64((float(a) / float(e) - pe1) / (1.0 - pe1))
     with np.errstate(divide="ignore", invalid="ignore"):
         pa = a / e
         pi = pi_sum / u[..., None]
@@ -151,6 +165,8 @@ def _bp_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
     e, a = s[..., 0], s[..., 1]
     if 1.0 - pe <= _TINY:
         return np.full(s.shape[:-1], np.nan)
+    if s.ndim == 1:
+        return np.float64((float(a) / float(e) - pe) / (1.0 - pe) if e > 0 else np.nan)
     with np.errstate(divide="ignore", invalid="ignore"):
         bp = (a / e - pe) / (1.0 - pe)
     return np.where(e > 0, bp, np.nan)
@@ -165,8 +181,11 @@ def _common(
     w = _weights_iv(weights, rows.shape[1])
     feats = _agreement_features(rows, w)
     m = rows.sum(axis=1)
-    n_unrated = int(mult[m == 0].sum())
-    n_single = int(mult[m == 1].sum())
+    if m.min() >= 2:
+        n_unrated = n_single = 0
+    else:
+        n_unrated = int(mult[m == 0].sum())
+        n_single = int(mult[m == 1].sum())
     notes: list[str] = []
     if n_unrated:
         notes.append(f"{n_unrated} item(s) have no rating and are left out.")
@@ -271,14 +290,16 @@ def gwet_ac(
         why = _one_category(name, value, extra)
     if why is not None:
         return _finish(name, value, None, mult, n_rated, level, notes, why, extra)
-    keep = m >= 1
-    rr, mm = rows[keep], m[keep]
-    a_i = feats[keep, 1]
+    if info["items_unrated"]:
+        keep = m >= 1
+        rows, m, feats, mult = rows[keep], m[keep], feats[keep], mult[keep]
+    rr, mm = rows, m
+    a_i = feats[:, 1]
     pe_i = tw / (k * (k - 1)) * (rr @ (1.0 - pi)) / mm
     cstar = (n_rated / n2) * (a_i - pe * (mm >= 2)) / (1.0 - pe) - 2.0 * (1.0 - value) * (
         pe_i - pe
     ) / (1.0 - pe)
-    return _finish(name, value, cstar, mult[keep], n_rated, level, notes, None, extra)
+    return _finish(name, value, cstar, mult, n_rated, level, notes, None, extra)
 
 
 def brennan_prediger(
@@ -307,11 +328,12 @@ def brennan_prediger(
         why = "The Brennan–Prediger coefficient is undefined: the scale has a single category."
     elif n2 == 0:
         why = "The Brennan–Prediger coefficient is undefined: no item has two or more ratings."
-    elif np.count_nonzero(rows[m >= 1].sum(axis=0) if (m >= 1).any() else 0) == 1:
+    elif np.count_nonzero(mult @ rows) == 1:
         why = _one_category("The Brennan–Prediger coefficient", value, extra)
     if why is not None:
         return _finish("Brennan–Prediger", value, None, mult, n_rated, level, notes, why, extra)
-    keep = m >= 1
-    a_i, mm = feats[keep, 1], m[keep]
-    cstar = (n_rated / n2) * (a_i - pe * (mm >= 2)) / (1.0 - pe)
-    return _finish("Brennan–Prediger", value, cstar, mult[keep], n_rated, level, notes, None, extra)
+    if info["items_unrated"]:
+        keep = m >= 1
+        m, feats, mult = m[keep], feats[keep], mult[keep]
+    cstar = (n_rated / n2) * (feats[:, 1] - pe * (m >= 2)) / (1.0 - pe)
+    return _finish("Brennan–Prediger", value, cstar, mult, n_rated, level, notes, None, extra)

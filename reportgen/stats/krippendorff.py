@@ -114,16 +114,27 @@ def krippendorff_alpha_from_sums(
     k = int(round(np.sqrt(s.shape[-1])))
     if k * k != s.shape[-1]:
         raise ValueError("Krippendorff sums must have k*k columns")
-    v = _level_iv(level, values, k)
+    return _alpha_parts(s, level, _level_iv(level, values, k))[0]
+
+
+def _alpha_parts(
+    s: np.ndarray, level: str, v: np.ndarray | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """``(alpha, sum o delta2, sum n_c n_k delta2, n, n_c)`` from coincidence sums."""
+    k = int(round(np.sqrt(s.shape[-1])))
     o = s.reshape(*s.shape[:-1], k, k)
     n_c = o.sum(axis=-1)
     n = n_c.sum(axis=-1)
     d2 = _delta2(n_c, level, v)
     d_obs = (o * d2).sum(axis=(-2, -1))
     d_exp = (n_c[..., :, None] * n_c[..., None, :] * d2).sum(axis=(-2, -1))
+    if s.ndim == 1:
+        ok = n > 1 and d_exp > 0
+        alpha = np.float64(1.0 - (n - 1.0) * d_obs / d_exp if ok else np.nan)
+        return alpha, d_obs, d_exp, n, n_c
     with np.errstate(divide="ignore", invalid="ignore"):
         alpha = 1.0 - (n - 1.0) * d_obs / d_exp
-    return np.where((n > 1) & (d_exp > 0), alpha, np.nan)
+    return np.where((n > 1) & (d_exp > 0), alpha, np.nan), d_obs, d_exp, n, n_c
 
 
 def krippendorff_alpha(
@@ -148,13 +159,19 @@ def krippendorff_alpha(
     rows = pat.rows.astype(np.float64)
     mult = pat.multiplicity.astype(np.float64)
     m = rows.sum(axis=1)
-    sums = mult @ krippendorff_alpha_features(rows)
-    value = float(krippendorff_alpha_from_sums(sums, level=level, values=v))
-    units = int(mult[m >= 2].sum())
-    dropped = int(mult[m == 1].sum())
-    o = sums.reshape(k, k)
-    n_c = o.sum(axis=1)
-    n_values = float(n_c.sum())
+    # Column sums of krippendorff_alpha_features(rows) weighted by multiplicity, formed as one
+    # small matrix product instead of an (items, k, k) array: sum_u s_u n_uc n_uk - diag(s_u n_uc)
+    # with s_u = multiplicity / (m_u - 1) for pairable units.
+    scale = mult * np.where(m >= 2, 1.0 / np.where(m >= 2, m - 1.0, 1.0), 0.0)
+    scaled = rows * scale[:, None]
+    o = scaled.T @ rows
+    o[np.diag_indices(k)] -= scaled.sum(axis=0)
+    sums = o.reshape(k * k)
+    alpha, d_obs, d_exp, n_values, n_c = _alpha_parts(sums, level, v)
+    value = float(alpha)
+    units = int(mult @ (m >= 2))
+    dropped = int(mult @ (m == 1))
+    n_values = float(n_values)
     notes: list[str] = []
     if dropped:
         notes.append(
@@ -179,11 +196,8 @@ def krippendorff_alpha(
             estimate=None, items=units, confidence_level=level_,
             warnings=(*notes, why), extra=extra,
         )
-    d2 = _delta2(n_c, level, v)
-    extra["d_observed"] = _finite_or_none(float((o * d2).sum()) / n_values)
-    extra["d_expected"] = _finite_or_none(
-        float((n_c[:, None] * n_c[None, :] * d2).sum()) / (n_values * (n_values - 1.0))
-    )
+    extra["d_observed"] = _finite_or_none(float(d_obs) / n_values)
+    extra["d_expected"] = _finite_or_none(float(d_exp) / (n_values * (n_values - 1.0)))
     return Estimate(
         estimate=value, items=units, confidence_level=level_, warnings=tuple(notes), extra=extra
     )

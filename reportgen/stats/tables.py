@@ -202,7 +202,9 @@ def count_patterns(codes: np.ndarray, n_categories: int) -> CountPatterns:
     n = a.shape[0]
     slots = int(np.prod(a.shape[1:], dtype=np.int64)) if a.ndim > 1 else 1
     radix = slots + 1
-    if n == 0 or slots == 0 or k * np.log2(radix) > 62:
+    if n <= _SMALL_TABLE:
+        return as_patterns(count_table(a, k))
+    if slots == 0 or k * np.log2(radix) > 62:
         return compress(count_table(a, k))
     flat = a.reshape(n, slots)
     lo, hi = int(flat.min()), int(flat.max())

@@ -86,7 +86,9 @@ def built_nominal(tmp_path_factory: pytest.TempPathFactory) -> Built:
 def pdftotext_pages(pdf: Path) -> list[str]:
     """Text of each page (poppler's pdftotext; pypdf as fallback)."""
     if shutil.which("pdftotext"):
-        out = subprocess.run(["pdftotext", "-layout", str(pdf), "-"], check=True, capture_output=True, text=True).stdout
+        out = subprocess.run(
+            ["pdftotext", "-layout", str(pdf), "-"], check=True, capture_output=True, text=True
+        ).stdout
         pages = out.split("\f")
         return pages[:-1] if pages and not pages[-1].strip() else pages
     import pypdf
@@ -103,7 +105,14 @@ def small_study(folder: Path, **overrides: Any) -> Path:
         "bootstrap": {"resamples": 0, "seed": 1},
         "criteria": {
             "source": "Invented test procedure",
-            "rules": [{"measure": "reproducibility.fleiss_kappa", "pass": 0.75, "marginal": 0.4, "judge": "estimate"}],
+            "rules": [
+                {
+                    "measure": "reproducibility.fleiss_kappa",
+                    "pass": 0.75,
+                    "marginal": 0.4,
+                    "judge": "estimate",
+                }
+            ],
         },
         "signoff": {"prepared_by": "Test Preparer"},
     }

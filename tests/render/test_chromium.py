@@ -19,12 +19,19 @@ import pytest
 
 from .conftest import SECTION_TITLES, Built
 
-CHROMIUM = shutil.which("chromium") or ("/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None)
+CHROMIUM = shutil.which("chromium") or (
+    "/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None
+)
 
 if CHROMIUM is None:
     if os.environ.get("CI") == "true":
-        raise RuntimeError("CI=true but chromium is not installed: .ci/run must install Debian's chromium package")
-    pytest.skip("headless Chromium check skipped: /usr/bin/chromium is not installed", allow_module_level=True)
+        raise RuntimeError(
+            "CI=true but chromium is not installed: .ci/run must install Debian's chromium package"
+        )
+    pytest.skip(
+        "headless Chromium check skipped: /usr/bin/chromium is not installed",
+        allow_module_level=True,
+    )
 
 
 def dump_dom(html_file: Path, profile: Path) -> str:

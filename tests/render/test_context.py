@@ -26,15 +26,25 @@ def test_templates_use_only_context_names() -> None:
     import jinja2.meta
 
     env = make_environment()
-    allowed = set(context_help()) | {"mx", "s", "loop"}  # import alias and the include loop variable
+    allowed = set(context_help()) | {
+        "mx",
+        "s",
+        "loop",
+    }  # import alias and the include loop variable
     folder = builtin_template_dir()
-    names = sorted(p.name for p in folder.glob("*.html") if p.name in {"base.html", "report.html", "_macros.html"} or p.name.startswith("_section_"))
+    names = sorted(
+        p.name
+        for p in folder.glob("*.html")
+        if p.name in {"base.html", "report.html", "_macros.html"} or p.name.startswith("_section_")
+    )
     names += ["report.css", "print.css"]
     assert "_section_summary.html" in names
     for name in names:
         source = (folder / name).read_text(encoding="utf-8")
         undeclared = jinja2.meta.find_undeclared_variables(env.parse(source))
-        assert undeclared <= allowed, f"{name} uses {sorted(undeclared - allowed)} outside the context contract"
+        assert undeclared <= allowed, (
+            f"{name} uses {sorted(undeclared - allowed)} outside the context contract"
+        )
 
 
 def test_one_partial_per_section() -> None:
@@ -46,14 +56,21 @@ def test_one_partial_per_section() -> None:
 def test_sections_follow_vocabulary() -> None:
     assert [t for _a, t in SECTIONS] == SECTION_TITLES
     vocab = None
-    for cand in (Path(__file__).resolve().parents[3] / "shared" / "VOCABULARY.md", Path("/work/shared/VOCABULARY.md")):
+    for cand in (
+        Path(__file__).resolve().parents[3] / "shared" / "VOCABULARY.md",
+        Path("/work/shared/VOCABULARY.md"),
+    ):
         if cand.is_file():
             vocab = cand.read_text(encoding="utf-8")
             break
     if vocab is None:
         pytest.skip("shared/VOCABULARY.md not beside the repository")
     block = vocab.split("## Report sections, in order", 1)[1].split("##", 1)[0]
-    listed = [line.split(". ", 1)[1].split(" (", 1)[0].strip() for line in block.splitlines() if line[:1].isdigit()]
+    listed = [
+        line.split(". ", 1)[1].split(" (", 1)[0].strip()
+        for line in block.splitlines()
+        if line[:1].isdigit()
+    ]
     assert listed == SECTION_TITLES
 
 
@@ -88,13 +105,21 @@ def test_binary_context_contents() -> None:
     # one certificate block per inspector, with the verdict module's outcome
     assert [b["rater"]["id"] for b in ctx.certification] == list(study.rater_ids)
     insp = {i["rater"]: i for i in results["certification"]["inspectors"]}
-    assert [b["outcome"] for b in ctx.certification] == [insp[r]["outcome"] for r in study.rater_ids]
-    assert ctx.running_head == f"{study.id} · revision {study.revision} · {results['verdict']['outcome']}"
+    assert [b["outcome"] for b in ctx.certification] == [
+        insp[r]["outcome"] for r in study.rater_ids
+    ]
+    assert (
+        ctx.running_head
+        == f"{study.id} · revision {study.revision} · {results['verdict']['outcome']}"
+    )
     # the sources carry the loader's hashes
     ratings_src = next(s for s in ctx.sources if s["role"] == "ratings")
     import hashlib
 
-    assert ratings_src["sha256"] == hashlib.sha256((STUDIES / "seal-check" / "ratings.csv").read_bytes()).hexdigest()
+    assert (
+        ratings_src["sha256"]
+        == hashlib.sha256((STUDIES / "seal-check" / "ratings.csv").read_bytes()).hexdigest()
+    )
 
 
 def test_nominal_without_reference_leaves_accuracy_out() -> None:
@@ -103,7 +128,11 @@ def test_nominal_without_reference_leaves_accuracy_out() -> None:
     assert ctx.accuracy == [] and ctx.panel == [] and ctx.confusion == []
     assert ctx.repeatability == []  # one trial
     assert ctx.ordinal is None
-    assert {m["key"] for m in ctx.reproducibility} >= {"agreement", "fleiss_kappa", "krippendorff_alpha"}
+    assert {m["key"] for m in ctx.reproducibility} >= {
+        "agreement",
+        "fleiss_kappa",
+        "krippendorff_alpha",
+    }
     assert "gwet_ac2" not in {m["key"] for m in ctx.reproducibility}  # nominal: absent
     method = {m["key"] for m in ctx.method}
     assert "miss_rate" not in method and "weighted_kappa" not in method and "fleiss_kappa" in method
@@ -167,11 +196,21 @@ def test_cli_start_up_imports_no_render_stack() -> None:
     import sys
 
     for args in (["--help"], ["build", "--help"]):
-        r = subprocess.run([sys.executable, "-X", "importtime", "-m", "reportgen", *args], capture_output=True, text=True)
+        r = subprocess.run(
+            [sys.executable, "-X", "importtime", "-m", "reportgen", *args],
+            capture_output=True,
+            text=True,
+        )
         assert r.returncode == 0, r.stderr[-500:]
-        imported = {line.split("|")[-1].strip().split(".")[0] for line in r.stderr.splitlines() if "|" in line}
+        imported = {
+            line.split("|")[-1].strip().split(".")[0]
+            for line in r.stderr.splitlines()
+            if "|" in line
+        }
         assert not imported & {"weasyprint", "matplotlib", "jinja2", "fontTools", "pandas"}, args
-    r = subprocess.run([sys.executable, "-m", "reportgen", "build", "--help"], capture_output=True, text=True)
+    r = subprocess.run(
+        [sys.executable, "-m", "reportgen", "build", "--help"], capture_output=True, text=True
+    )
     for option in ("--output", "--replace", "--generated-at", "--strict", "--no-pdf", "--quiet"):
         assert option in r.stdout, option
 
@@ -179,6 +218,8 @@ def test_cli_start_up_imports_no_render_stack() -> None:
 def test_bad_generated_at_is_input_error(tmp_path, run_cli) -> None:  # type: ignore[no-untyped-def]
     from .conftest import small_study
 
-    code, _o, err = run_cli("build", small_study(tmp_path / "s"), "-o", tmp_path / "out", "--generated-at", "yesterday")
+    code, _o, err = run_cli(
+        "build", small_study(tmp_path / "s"), "-o", tmp_path / "out", "--generated-at", "yesterday"
+    )
     assert code == 2 and "--generated-at" in err and "ISO 8601" in err
     assert not (tmp_path / "out").exists()

@@ -26,7 +26,11 @@ HOSTILE_RATERS = [
     {"id": "R4", "name": LONG},
 ]
 HOSTILE_CATEGORIES = [
-    {"code": "P", "label": '<a href="file:///etc/passwd">Premium</a>', "description": "see http://127.0.0.1:9/x.png"},
+    {
+        "code": "P",
+        "label": '<a href="file:///etc/passwd">Premium</a>',
+        "description": "see http://127.0.0.1:9/x.png",
+    },
     {"code": "S", "label": "مقبول"},  # Arabic
     {"code": "X", "label": "不良品 ![x](file:///etc/hostname)"},
 ]
@@ -39,7 +43,11 @@ def hostile(tmp_path_factory: pytest.TempPathFactory) -> Built:
         base / "s",
         raters=HOSTILE_RATERS,
         categories=HOSTILE_CATEGORIES,
-        study={"title": "<b>Bold</b> & \"quoted\" title", "station": "javascript:alert(1)", "purpose": "$x^2$ math-looking"},
+        study={
+            "title": '<b>Bold</b> & "quoted" title',
+            "station": "javascript:alert(1)",
+            "purpose": "$x^2$ math-looking",
+        },
         signoff={"prepared_by": "</td></tr></table><h2>Injected</h2>"},
     )
     return build(s, base / "out")
@@ -49,7 +57,10 @@ def test_markup_is_text(hostile: Built) -> None:
     h = hostile.html
     assert "<script>" not in h and "onerror=alert" not in h.replace("onerror=alert(1)&gt;", "")
     assert "&lt;script&gt;alert(&#34;x&#34;)&lt;/script&gt;" in h
-    assert '<a href="file:' not in h and "&lt;a href=&#34;file:///etc/passwd&#34;&gt;Premium&lt;/a&gt;" in h
+    assert (
+        '<a href="file:' not in h
+        and "&lt;a href=&#34;file:///etc/passwd&#34;&gt;Premium&lt;/a&gt;" in h
+    )
     assert "<h2>Injected</h2>" not in h
     assert len(re.findall(r"<h2 ", h)) == len(re.findall(r"<h2", h))  # every h2 is ours (has an id)
     # no attribute carries user text as a URL
@@ -65,14 +76,21 @@ def test_rtl_cjk_and_long_names_render(hostile: Built) -> None:
     assert "不良品" in compact
     # Hebrew and Arabic come out of the PDF (pdftotext may give them in visual order)
     assert ("שרה" in text or "הרש" in text) and ("כהן" in text or "ןהכ" in text)
-    assert "مقبول" in text or "لوبقم" in text or "ﻣﻘﺒﻮﻝ" in text or len(re.findall(r"[\u0600-\u06ff\ufe70-\ufeff]", text)) >= 5
+    assert (
+        "مقبول" in text
+        or "لوبقم" in text
+        or "ﻣﻘﺒﻮﻝ" in text
+        or len(re.findall(r"[\u0600-\u06ff\ufe70-\ufeff]", text)) >= 5
+    )
     assert LONG[:40] in compact  # the long name is wrapped, not cut
     assert "$x^2$" in compact
 
 
 @pytest.mark.skipif(not shutil.which("pdffonts"), reason="poppler-utils (pdffonts) not installed")
 def test_cjk_drawn_with_shipped_fallback(hostile: Built) -> None:
-    out = subprocess.run(["pdffonts", str(hostile.pdf_path)], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run(
+        ["pdffonts", str(hostile.pdf_path)], capture_output=True, text=True, check=True
+    ).stdout
     assert "Report-Sans-Wide" in out
     for row in out.splitlines()[2:]:
         assert "+Report-" in row.split()[0], row
@@ -89,7 +107,14 @@ def test_no_attachment_smuggled(hostile: Built) -> None:
 
 
 def test_uncovered_glyph_fails_clearly(tmp_path: Path) -> None:
-    s = small_study(tmp_path / "s", raters=[{"id": "R1", "name": "Ann अनु"}, {"id": "R2", "name": "Bo"}, {"id": "R3", "name": "Cy"}])
+    s = small_study(
+        tmp_path / "s",
+        raters=[
+            {"id": "R1", "name": "Ann अनु"},
+            {"id": "R2", "name": "Bo"},
+            {"id": "R3", "name": "Cy"},
+        ],
+    )
     with pytest.raises(RenderError) as exc:
         build(s, tmp_path / "out")
     msg = str(exc.value)

@@ -66,10 +66,16 @@ def test_sections_in_order(built_binary: Built, built_ordinal: Built, built_nomi
 def test_self_contained_and_locked_down(built_binary: Built) -> None:
     doc = parse(built_binary.html)
     assert not any(tag == "script" for tag, _ in doc.tags)
-    csp = [a for tag, a in doc.tags if tag == "meta" and a.get("http-equiv") == "Content-Security-Policy"]
+    csp = [
+        a
+        for tag, a in doc.tags
+        if tag == "meta" and a.get("http-equiv") == "Content-Security-Policy"
+    ]
     assert len(csp) == 1
     policy = csp[0]["content"] or ""
-    assert "default-src 'none'" in policy and "script-src" not in policy and "img-src data:" in policy
+    assert (
+        "default-src 'none'" in policy and "script-src" not in policy and "img-src data:" in policy
+    )
     for tag, attrs in doc.tags:
         for name in ("src", "href", "data", "action", "poster"):
             value = attrs.get(name)
@@ -80,7 +86,7 @@ def test_self_contained_and_locked_down(built_binary: Built) -> None:
     # fonts and charts are inline
     assert built_binary.html.count("@font-face") >= 3
     assert 'src: url("data:font/ttf;base64,' in built_binary.html
-    assert "url(\"fonts/" not in built_binary.html
+    assert 'url("fonts/' not in built_binary.html
     assert built_binary.html.count('<img src="data:image/svg+xml;base64,') >= 3
 
 
@@ -112,7 +118,10 @@ def test_figures_equal_results(built_binary: Built) -> None:
         eff = acc["effectiveness"]
         assert f"Effectiveness {fmt_pct(eff)}" in text, rid
     # completeness counts
-    assert f"{r['design']['ratings']} of {r['design']['ratings'] + r['design']['missing']} expected ratings" in text
+    assert (
+        f"{r['design']['ratings']} of {r['design']['ratings'] + r['design']['missing']} expected ratings"
+        in text
+    )
 
 
 def test_plain_words_reading_beside_numbers(built_binary: Built) -> None:
@@ -150,6 +159,7 @@ def test_override_extends_default(tmp_path: Path) -> None:
     b = build(_override_study(tmp_path, tpl), tmp_path / "out", pdf=False)
     assert "<title>ACME cover — TEST-01</title>" in b.html
     assert headings(b.html)[0] == "Summary and verdict"
+    assert "company templates from folder <bdi>company</bdi> (report.html)" in b.html
 
 
 @pytest.mark.parametrize(
@@ -164,4 +174,26 @@ def test_override_extends_default(tmp_path: Path) -> None:
 def test_override_errors(tmp_path: Path, template: str, message: str) -> None:
     with pytest.raises(RenderError, match=message):
         build(_override_study(tmp_path, template), tmp_path / "out", pdf=False)
-    assert not (tmp_path / "out" / "TEST-01").exists() or not any((tmp_path / "out" / "TEST-01").iterdir())
+    assert not (tmp_path / "out" / "TEST-01").exists() or not any(
+        (tmp_path / "out" / "TEST-01").iterdir()
+    )
+
+
+def test_charts_deterministic_and_rasterised() -> None:
+    from reportgen.render import charts
+
+    grid = [[(i + c) % 3 for c in range(6)] for i in range(200)]
+    items = [f"I{i:03d}" for i in range(200)]
+    cols = [f"R{c}" for c in range(6)]
+    args = ("item-map", "t", grid, items, cols, ["A", "B", "C"], [i % 3 for i in range(200)])
+    a = charts.item_map(*args, ordinal=True, alt="a")
+    b = charts.item_map(*args, ordinal=True, alt="a")
+    assert a.svg == b.svg
+    svg = a.svg.decode()
+    assert "<image" in svg  # the 1,200 cells are one raster image, not 1,200 vector marks
+    assert svg.count("<rect") < 50
+    assert "<dc:date>" not in svg
+    pts = [charts.Point("$R1$ <b>", 0.8, 0.7, 0.9), charts.Point("R2", None, None, None)]
+    c = charts.interval_panels("p", "t", [("x", pts, charts.Band(0.75, 0.4), (0.0, 1.0))], alt="a")
+    assert c.svg.startswith(b"<?xml") and b"<script" not in c.svg
+    assert c.data_uri.startswith("data:image/svg+xml;base64,")
