@@ -143,11 +143,12 @@ def render_report(
     """Render charts, HTML and PDF in memory from already computed (and judged) results."""
     from .charts import report_charts
     from .context import build_context, rater_dicts, verdict_view
-    from .html import render_html
+    from .html import check_glyphs, render_html
 
     say = progress or (lambda _m: None)
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
+    check_glyphs(_user_text(study, ratings))  # fail early and clearly, before charts are drawn
     say("charts")
     charts = report_charts(study, ratings, dict(results), verdict_view(results, rater_dicts(study)))
     timings["charts"] = time.perf_counter() - t0
@@ -182,6 +183,24 @@ def render_report(
         templates=rendered.templates,
         timings=timings,
     )
+
+
+def _user_text(study: Study, ratings: Ratings | None) -> str:
+    """Every piece of text the study's author supplied (names, labels, ids …)."""
+    parts = [
+        study.id,
+        study.title,
+        study.purpose or "",
+        study.characteristic or "",
+        study.station or "",
+    ]
+    parts += [f"{c.code} {c.label} {c.description or ''}" for c in study.categories]
+    parts += [f"{r.id} {r.name}" for r in study.raters]
+    so = study.signoff
+    parts += [so.prepared_by or "", so.reviewed_by or "", so.approved_by or ""]
+    if ratings is not None:
+        parts += list(ratings.items)
+    return "\n".join(parts)
 
 
 def revision_dir(output_dir: Path, study: Study) -> Path:

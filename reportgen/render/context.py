@@ -1042,5 +1042,9 @@ def _templates(study: Study) -> dict[str, Any]:
     folder = study.templates_path
     if folder is None:
         return {"override": None, "files": []}
-    files = sorted(p.name for p in Path(folder).iterdir() if p.is_file()) if Path(folder).is_dir() else []
+    files = (
+        sorted(p.name for p in Path(folder).iterdir() if p.is_file())
+        if Path(folder).is_dir()
+        else []
+    )
     return {"override": Path(folder).name, "files": files}

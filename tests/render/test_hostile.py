@@ -120,3 +120,13 @@ def test_uncovered_glyph_fails_clearly(tmp_path: Path) -> None:
     msg = str(exc.value)
     assert "U+0905" in msg and "DEVANAGARI" in msg and "Ann" in msg and "no shipped font" in msg
     assert not (tmp_path / "out" / "TEST-01" / "rev1").exists()
+
+
+def test_uncovered_glyph_in_a_chart_label_fails_before_charts(tmp_path: Path) -> None:
+    cats = [
+        {"code": "P", "label": "Premium"},
+        {"code": "S", "label": "ठीक"},
+        {"code": "X", "label": "Scrap"},
+    ]
+    with pytest.raises(RenderError, match="U\\+0920"):
+        build(small_study(tmp_path / "s", categories=cats), tmp_path / "out")
