@@ -12,6 +12,7 @@ counting conventions are stated in ``results["conventions"]`` and in the README.
 
 from __future__ import annotations
 
+import gc
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -22,14 +23,13 @@ import numpy as np
 
 from .model import Ratings, Study
 from .stats.results import Estimate
+from .stats.tables import CountPatterns
 
 SCHEMA = "reportgen-results/1"
 #: at most this many ids in results["hard_items"]
 HARD_ITEMS_LIMIT = 25
 
 Progress = Callable[[str], None]
-Features = tuple[np.ndarray, Callable[[np.ndarray], np.ndarray]]
-MaybeFeatures = Features | None
 
 CONVENTIONS: dict[str, str] = {
     "rating_slots": (
@@ -66,6 +66,12 @@ CONVENTIONS: dict[str, str] = {
         "that are the defect category, out of all ratings of those items."
     ),
     "accuracy.kendall_tau_b": "Ordinal scales: Kendall's tau-b of the rater's ratings (all trials) against the reference.",
+    "accuracy.exact_agreement": (
+        "Ordinal scales, per rater and for the panel: ratings equal to the reference "
+        "(exact_agreement) or at most one category away from it (within_one_agreement), out of the "
+        "ratings of items with a reference; the same counts as ordinal.accuracy.<rater>.exact and "
+        ".within_one_step, with the study's proportion interval."
+    ),
     "accuracy.confusion": "Counts of ratings: rows are the rater's category, columns the reference category.",
     "reproducibility.agreement": (
         "Items on which every rating of every rater (all trials) is the same category, out of the items "
@@ -134,9 +140,44 @@ CONVENTIONS: dict[str, str] = {
 
 @dataclass
 class _Boot:
-    features: np.ndarray
+    group: str
+    block: str
     from_sums: Callable[[np.ndarray], np.ndarray]
     record: dict[str, Any]
+    #: what to say when the study is too large to bootstrap this measure
+    too_large: str
+
+
+@dataclass
+class _Group:
+    """Bootstrap features of one compression of the items into patterns.
+
+    ``blocks`` maps a block name to ``(width, builder)``; a builder makes the block's
+    (patterns × width) feature rows only when the group is bootstrapped.  ``priority`` orders
+    the groups when the study is too large to bootstrap all of them (0 = always).
+    """
+
+    multiplicity: np.ndarray
+    inverse: np.ndarray
+    priority: int
+    blocks: dict[str, tuple[int, Callable[[], np.ndarray]]] = field(default_factory=dict)
+    rows: np.ndarray | None = None  # the distinct rows themselves, where a builder needs them
+
+
+#: a bootstrap request: (group, block, from_sums)
+BootSpec = tuple[str, str, Callable[[np.ndarray], np.ndarray]]
+
+TOO_LARGE_NO_INTERVAL = (
+    "No interval: this coefficient has no published analytic interval, and an item bootstrap "
+    "of it would be too large for this study (items × raters × resamples)."
+)
+TOO_LARGE_ANALYTIC = (
+    "The study is too large for an item bootstrap of this coefficient: its analytic interval is kept."
+)
+TOO_LARGE_COHEN = (
+    "The study is too large for an item bootstrap of this kappa: its analytic interval "
+    "treats the rater's repeated ratings of an item as independent and is too narrow."
+)
 
 
 @dataclass
@@ -144,6 +185,7 @@ class _Collector:
     warnings: list[dict[str, str]] = field(default_factory=list)
     notes: list[dict[str, str]] = field(default_factory=list)
     boot: dict[str, _Boot] = field(default_factory=dict)
+    groups: dict[str, _Group] = field(default_factory=dict)
 
     def warn(self, measure: str, message: str) -> None:
         entry = {"measure": measure, "message": message}
@@ -153,12 +195,20 @@ class _Collector:
     def note(self, measure: str, message: str) -> None:
         self.notes.append({"measure": measure, "message": message})
 
-    def record(self, path: str, est: Estimate, boot: Features | None = None) -> dict[str, Any]:
+    def record(
+        self,
+        path: str,
+        est: Estimate,
+        boot: BootSpec | None = None,
+        *,
+        too_large: str = TOO_LARGE_ANALYTIC,
+    ) -> dict[str, Any]:
         rec = est.as_record()
         for w in est.warnings:
             self.warn(path, w)
         if boot is not None and est.estimate is not None:
-            self.boot[path] = _Boot(boot[0], boot[1], rec)
+            group, block, fn = boot
+            self.boot[path] = _Boot(group, block, fn, rec, too_large)
         return rec
 
 
@@ -193,6 +243,7 @@ class _Data:
     defect: int | None
     values: np.ndarray | None  # numeric category values, when every category has one
     slots: np.ndarray  # (n, r*t)
+    pat: CountPatterns  # distinct rows of the items × categories table, with multiplicities
     counts: np.ndarray  # (n, k) ratings per category per item
 
     @property
@@ -211,7 +262,7 @@ class _Data:
 
 
 def _prepare(study: Study, ratings: Ratings) -> _Data:
-    from .stats.tables import count_table
+    from .stats.tables import count_patterns
     from .stats.weights import agreement_weights
 
     codes = np.asarray(ratings.codes)
@@ -258,7 +309,8 @@ def _prepare(study: Study, ratings: Ratings) -> _Data:
         if np.ptp(values) == 0:
             values = None
     slots = codes.reshape(n, r * t)
-    counts = count_table(slots, k)
+    pat = count_patterns(slots, k)  # once, for every count-table coefficient
+    counts = pat.rows[pat.inverse]
     return _Data(
         study=study,
         ratings=ratings,
@@ -275,6 +327,7 @@ def _prepare(study: Study, ratings: Ratings) -> _Data:
         defect=defect,
         values=values,
         slots=slots,
+        pat=pat,
         counts=np.asarray(counts, dtype=np.int64),
     )
 
@@ -290,95 +343,136 @@ def _proportion(d: _Data, x: int, n: int) -> Estimate:
     return proportion(int(x), int(n), confidence_level=d.level, method=d.study.proportion_interval)
 
 
+class _Pick:
+    """Column ``j`` of a vector-valued ``from_sums``; columns of one :class:`_Shared` are computed once."""
+
+    def __init__(self, shared: _Shared, j: int) -> None:
+        self.shared, self.j = shared, j
+
+    def __call__(self, s: np.ndarray) -> np.ndarray:
+        return self.shared(s)[..., self.j]
+
+
+class _Shared:
+    """Remembers the results for the last few input arrays (compared by identity, kept alive):
+    the bootstrap evaluates each statistic on the full sums, the replicates and the jackknife."""
+
+    _KEEP = 4
+
+    def __init__(self, fn: Callable[[np.ndarray], np.ndarray]) -> None:
+        self.fn = fn
+        self.seen: list[tuple[np.ndarray, np.ndarray]] = []
+
+    def __call__(self, s: np.ndarray) -> np.ndarray:
+        for arg, value in self.seen:
+            if arg is s:
+                return value
+        value = np.asarray(self.fn(s))
+        self.seen = [*self.seen[-(self._KEEP - 1) :], (s, value)]
+        return value
+
+
+def _count_group(col: _Collector, name: str, pat: CountPatterns, priority: int) -> str:
+    """Register the bootstrap group of a count table's patterns (once)."""
+    if name not in col.groups:
+        col.groups[name] = _Group(pat.multiplicity, pat.inverse, priority)
+    return name
+
+
 def _fleiss(
-    counts: np.ndarray, level: float, want: bool
-) -> tuple[Any, MaybeFeatures, Callable[[int], Features] | None]:
-    """Fleiss' kappa (overall and by category), with its bootstrap features when ``want``."""
+    pat: CountPatterns,
+    level: float,
+    labels: tuple[str, ...],
+    col: _Collector,
+    group: str | None,
+) -> tuple[Any, BootSpec | None, list[BootSpec] | None]:
+    """Fleiss' kappa (overall and by category), with its bootstrap requests when ``group``."""
     from .stats import fleiss
 
-    res = fleiss.fleiss_kappa(counts, confidence_level=level)
-    if not want or not _fits(*counts.shape):
+    res = fleiss.fleiss_kappa(pat, confidence_level=level, labels=labels)
+    if group is None:
         return res, None, None
-    feats = fleiss.fleiss_kappa_features(counts)
-
-    def overall(s: np.ndarray) -> np.ndarray:
-        return fleiss.fleiss_kappa_from_sums(s)
-
-    def by_cat(j: int) -> Features:
-        return feats, lambda s: fleiss.fleiss_kappa_by_category_from_sums(s)[..., j]
-
-    return res, (feats, overall), by_cat
+    k = pat.rows.shape[1]
+    col.groups[group].blocks.setdefault(
+        "fleiss", (3 + 2 * k, lambda: fleiss.fleiss_kappa_features(pat.rows))
+    )
+    by_cat = _Shared(fleiss.fleiss_kappa_by_category_from_sums)
+    return (
+        res,
+        (group, "fleiss", fleiss.fleiss_kappa_from_sums),
+        [(group, "fleiss", _Pick(by_cat, j)) for j in range(k)],
+    )
 
 
 def _krippendorff(
-    counts: np.ndarray, level: str, values: np.ndarray | None, conf: float, want: bool
-) -> tuple[Estimate, MaybeFeatures]:
+    pat: CountPatterns, level: str, values: np.ndarray | None, conf: float,
+    col: _Collector, group: str | None,
+) -> tuple[Estimate, BootSpec | None]:
     from .stats import krippendorff as kr
 
-    est = kr.krippendorff_alpha(counts, level=level, values=values, confidence_level=conf)  # type: ignore[arg-type]
-    if not want or not _fits(counts.shape[0], counts.shape[1] ** 2):
+    est = kr.krippendorff_alpha(pat, level=level, values=values, confidence_level=conf)  # type: ignore[arg-type]
+    if group is None:
         return est, None
-    feats = kr.krippendorff_alpha_features(counts)
+    k = pat.rows.shape[1]
+    col.groups[group].blocks.setdefault(
+        "krippendorff", (k * k, lambda: kr.krippendorff_alpha_features(pat.rows))
+    )
 
     def fn(s: np.ndarray) -> np.ndarray:
         return kr.krippendorff_alpha_from_sums(s, level=level, values=values)  # type: ignore[arg-type]
 
-    return est, (feats, fn)
+    return est, (group, "krippendorff", fn)
 
 
 def _gwet(
-    counts: np.ndarray, weights: np.ndarray | None, conf: float, want: bool
-) -> tuple[Estimate, MaybeFeatures]:
+    pat: CountPatterns, weights: np.ndarray | None, conf: float,
+    col: _Collector, group: str | None,
+) -> tuple[Estimate, BootSpec | None]:
     from .stats import gwet
 
-    est = gwet.gwet_ac(counts, weights=weights, confidence_level=conf)
-    if not want or not _fits(counts.shape[0], counts.shape[1] + 3):
+    est = gwet.gwet_ac(pat, weights=weights, confidence_level=conf)
+    if group is None:
         return est, None
-    feats = gwet.gwet_ac_features(counts, weights=weights)
+    k = pat.rows.shape[1]
+    block = "ac1" if weights is None else "ac2"
+    col.groups[group].blocks.setdefault(
+        block, (3 + k, lambda: gwet.gwet_ac_features(pat.rows, weights=weights))
+    )
 
     def fn(s: np.ndarray) -> np.ndarray:
         return gwet.gwet_ac_from_sums(s, weights=weights)
 
-    return est, (feats, fn)
+    return est, (group, block, fn)
 
 
 def _brennan_prediger(
-    counts: np.ndarray, conf: float, want: bool
-) -> tuple[Estimate, MaybeFeatures]:
+    pat: CountPatterns, conf: float, col: _Collector, group: str | None
+) -> tuple[Estimate, BootSpec | None]:
     from .stats import gwet
 
-    est = gwet.brennan_prediger(counts, confidence_level=conf)
-    if not want:
+    est = gwet.brennan_prediger(pat, confidence_level=conf)
+    if group is None:
         return est, None
-    feats = gwet.brennan_prediger_features(counts)
-    k = counts.shape[1]
+    k = pat.rows.shape[1]
+    col.groups[group].blocks.setdefault(
+        "bp", (3, lambda: gwet.brennan_prediger_features(pat.rows))
+    )
 
     def fn(s: np.ndarray) -> np.ndarray:
         return gwet.brennan_prediger_from_sums(s, k)
 
-    return est, (feats, fn)
+    return est, (group, "bp", fn)
 
 
-#: largest feature matrix (in float64 cells) built for the bootstrap of one coefficient (~160 MB)
+#: largest feature matrix (in float64 cells) built for the bootstrap of one group (~160 MB)
 FEATURE_CELLS_LIMIT = 20_000_000
 
 
-#: largest resamples × items × features product bootstrapped for a coefficient whose features
-#: identify raters (Conger, Light, Cohen per rater): those rows rarely repeat, so the bootstrap
-#: cannot compress items into patterns and costs about this many multiply-adds (~1 s)
+#: largest resamples × patterns × features product bootstrapped (about this many multiply-adds,
+#: ~1 s).  The count-table coefficients always fit (they are compressed to a few thousand
+#: patterns); coefficients whose features identify raters (Cohen per rater with several trials,
+#: Conger, Light) compress only over identical rating rows, which are rare in large studies.
 BOOT_WORK_LIMIT = 1_000_000_000
-
-
-def _fits(rows: int, columns: int) -> bool:
-    """Whether a rows × columns float64 feature matrix stays within FEATURE_CELLS_LIMIT."""
-    return rows * columns <= FEATURE_CELLS_LIMIT
-
-
-def _affordable(d: _Data, columns: int) -> bool:
-    """Whether an item bootstrap of a rater-identified coefficient with ``columns`` features is cheap enough."""
-    return d.study.bootstrap_resamples * d.n * columns <= BOOT_WORK_LIMIT and _fits(
-        d.n * d.t, columns
-    )
 
 
 def _item_sums(unit_features: np.ndarray, n: int, t: int) -> np.ndarray:
@@ -389,61 +483,132 @@ def _item_sums(unit_features: np.ndarray, n: int, t: int) -> np.ndarray:
     return unit_features.reshape(n, t, f).sum(axis=1)
 
 
-def _conger(d: _Data, units: np.ndarray, t: int, want: bool) -> tuple[Estimate, MaybeFeatures]:
+def _rows_group(d: _Data, col: _Collector) -> str:
+    """The group of distinct rating rows (raters × trials codes of an item), for Conger/Light."""
+    name = "rows"
+    if name not in col.groups:
+        from .stats.tables import patterns
+
+        key = d.slots.astype(np.int16) + 1  # 0 = missing, so the exact integer key applies
+        u, mult, inv = patterns(key)
+        col.groups[name] = _Group(mult, inv, 3, rows=(u - 1).astype(np.int8))
+    return name
+
+
+def _rows_may_fit(d: _Data, width: int) -> bool:
+    """Whether a rating-rows block of ``width`` features could fit the bootstrap work limit.
+
+    The distinct rating rows are at least as many as the distinct count rows (these are a
+    function of those), so when even that many are too many the rows are not compressed."""
+    cells = max(d.pat.n_patterns, 1)
+    return d.study.bootstrap_resamples * cells * width <= BOOT_WORK_LIMIT
+
+
+def _rows_units(d: _Data, col: _Collector) -> tuple[np.ndarray, int]:
+    """(patterns × trials, raters) units of the distinct rating rows, and the pattern count."""
+    rows = col.groups["rows"].rows
+    assert rows is not None
+    p = rows.shape[0]
+    return rows.reshape(p, d.r, d.t).transpose(0, 2, 1).reshape(p * d.t, d.r), p
+
+
+def _conger(
+    d: _Data, units: np.ndarray, col: _Collector, want: bool
+) -> tuple[Estimate, BootSpec | None]:
     from .stats import pairwise
 
-    k, n = d.k, d.n
+    k = d.k
     est = pairwise.conger_kappa(units, k, confidence_level=d.level, rater_labels=d.raters)
-    if not want or not _affordable(d, 2 + units.shape[1] * k):
+    if not want or not _rows_may_fit(d, 2 + d.r * k):
         return est, None
-    feats = _item_sums(pairwise.conger_kappa_features(units, k), n, t)
+    group = _rows_group(d, col)
+
+    def build() -> np.ndarray:
+        u, p = _rows_units(d, col)
+        return _item_sums(pairwise.conger_kappa_features(u, k), p, d.t)
+
+    col.groups[group].blocks.setdefault("conger", (2 + d.r * k, build))
 
     def fn(s: np.ndarray) -> np.ndarray:
         return pairwise.conger_kappa_from_sums(s, k)
 
-    return est, (feats, fn)
+    return est, (group, "conger", fn)
 
 
-def _light(d: _Data, units: np.ndarray, t: int, want: bool) -> tuple[Estimate, MaybeFeatures]:
+def _light(
+    d: _Data, units: np.ndarray, tables: np.ndarray | None, col: _Collector, want: bool
+) -> tuple[Estimate, BootSpec | None]:
     from .stats import pairwise
 
-    k, n = d.k, d.n
-    est = pairwise.light_kappa(units, k, confidence_level=d.level, rater_labels=d.raters)
-    r = units.shape[1]
-    if not want or not _affordable(d, r * (r - 1) // 2 * k * k):
+    k = d.k
+    est = pairwise.light_kappa(
+        units, k, confidence_level=d.level, rater_labels=d.raters, pair_tables=tables
+    )
+    width = d.r * (d.r - 1) // 2 * k * k
+    if not want or not _rows_may_fit(d, width):
         return est, None
-    feats = _item_sums(pairwise.light_kappa_features(units, k), n, t)
+    group = _rows_group(d, col)
+
+    def build() -> np.ndarray:
+        u, p = _rows_units(d, col)
+        return _item_sums(pairwise.light_kappa_features(u, k), p, d.t)
+
+    col.groups[group].blocks.setdefault("light", (width, build))
 
     def fn(s: np.ndarray) -> np.ndarray:
         return pairwise.light_kappa_from_sums(s, k)
 
-    return est, (feats, fn)
+    return est, (group, "light", fn)
+
+
+def _cohen_group(d: _Data, col: _Collector, j: int) -> str:
+    """Group of one rater's distinct (trials codes, reference) rows, for the clustered kappa."""
+    from .stats import cohen
+    from .stats.tables import patterns
+
+    assert d.ref is not None
+    name = f"cohen.{j}"
+    if name in col.groups:
+        return name
+    key = np.empty((d.n, d.t + 1), dtype=np.int16)
+    key[:, : d.t] = d.codes[:, j, :]
+    key[:, d.t] = d.ref
+    u, mult, inv = patterns(key + 1)  # 0 = missing / no reference
+    u = u.astype(np.int64) - 1
+    grp = _Group(mult, inv, 2)
+
+    def build() -> np.ndarray:
+        sub, ref = u[:, : d.t], u[:, d.t]
+        rated = (sub >= 0) & (ref >= 0)[:, None]
+        a = np.where(rated, sub, -1).reshape(-1)
+        b = np.where(rated, ref[:, None], -1).reshape(-1)
+        return _item_sums(cohen.cohen_kappa_features(a, b, d.k), u.shape[0], d.t)
+
+    grp.blocks["cohen"] = (d.k * d.k, build)
+    col.groups[name] = grp
+    return name
 
 
 def _cohen(
     a: np.ndarray,
     b: np.ndarray,
     k: int,
-    n: int,
-    t: int,
     weights: np.ndarray | None,
     conf: float,
-    *,
-    features: bool = True,
-) -> tuple[Estimate, MaybeFeatures, np.ndarray]:
-    """Cohen's kappa of paired flat arrays (item-major, t pairs per item) with per-item features."""
+    group: str | None,
+) -> tuple[Estimate, BootSpec | None, np.ndarray]:
+    """Cohen's kappa of paired flat arrays, with its bootstrap request when ``group``."""
     from .stats import cohen
 
     table = cohen.confusion_matrix(a, b, k)
     est = cohen.cohen_kappa(table, weights=weights, confidence_level=conf)
-    if not features or not _fits(n * t, k * k):
+    if group is None:
         return est, None, table
-    feats = _item_sums(cohen.cohen_kappa_features(a, b, k), n, t)
 
     def fn(s: np.ndarray) -> np.ndarray:
         return cohen.cohen_kappa_from_sums(s, k, weights=weights)
 
-    return est, (feats, fn), table
+    return est, (group, "cohen", fn), table
 
 
 # --------------------------------------------------------------------------------------------
@@ -451,12 +616,18 @@ def _cohen(
 # --------------------------------------------------------------------------------------------
 
 
-def _all_agree(counts: np.ndarray) -> tuple[int, int]:
-    """(items with ≥ 2 ratings, of which all ratings agree)."""
-    m = counts.sum(axis=1)
+def _all_agree(counts: np.ndarray | CountPatterns) -> tuple[int, int]:
+    """(items with ≥ 2 ratings, of which all ratings agree), from a table or its patterns."""
+    if isinstance(counts, CountPatterns):
+        rows, w = counts.rows, counts.multiplicity
+    else:
+        rows, w = counts, None
+    m = rows.sum(axis=1)
     eligible = m >= 2
-    agree = eligible & (counts.max(axis=1, initial=0) == m)
-    return int(eligible.sum()), int(agree.sum())
+    agree = eligible & (rows.max(axis=1, initial=0) == m)
+    if w is None:
+        return int(eligible.sum()), int(agree.sum())
+    return int(w @ eligible), int(w @ agree)
 
 
 def _offset_table(counts: np.ndarray, k: int) -> dict[str, int]:
@@ -473,12 +644,12 @@ def _path(*parts: object) -> str:
 
 
 def _repeatability(d: _Data, col: _Collector) -> dict[str, Any]:
-    from .stats.tables import count_table
+    from .stats.tables import count_patterns
 
     out: dict[str, Any] = {}
     for j, rid in enumerate(d.raters):
-        c = np.asarray(count_table(d.codes[:, j, :], d.k), dtype=np.int64)
-        eligible, agree = _all_agree(c)
+        pat = count_patterns(d.codes[:, j, :], d.k)
+        eligible, agree = _all_agree(pat)
         base = _path("repeatability", rid)
         entry: dict[str, Any] = {
             "agreement": col.record(_path(base, "agreement"), _proportion(d, agree, eligible)),
@@ -488,7 +659,8 @@ def _repeatability(d: _Data, col: _Collector) -> dict[str, Any]:
                 base,
                 f"Rater {rid} rated no item in two or more trials: repeatability cannot be judged.",
             )
-        res, boot, _ = _guarded_fleiss(c, d, col, _path(base, "fleiss_kappa"), d.want_boot)
+        group = _count_group(col, f"repeat.{j}", pat, 1) if d.want_boot else None
+        res, boot, _ = _guarded_fleiss(pat, d, col, _path(base, "fleiss_kappa"), group)
         entry["fleiss_kappa"] = col.record(
             _path(base, "fleiss_kappa"), res.overall if res else _undefined_fleiss(), boot
         )
@@ -503,14 +675,13 @@ def _undefined_fleiss() -> Estimate:
 
 
 def _guarded_fleiss(
-    counts: np.ndarray, d: _Data, col: _Collector, path: str, want: bool
-) -> tuple[Any, Features | None, Callable[[int], Features] | None]:
+    pat: CountPatterns, d: _Data, col: _Collector, path: str, group: str | None
+) -> tuple[Any, BootSpec | None, list[BootSpec] | None]:
     try:
-        res, boot, by_cat = _fleiss(counts, d.level, want)
+        return _fleiss(pat, d.level, d.cats, col, group)
     except (ValueError, ZeroDivisionError, FloatingPointError) as exc:
         col.warn(path, f"Fleiss' kappa could not be computed for these data: {exc}")
         return None, None, None
-    return res, boot, by_cat
 
 
 def _rater_vs_reference(d: _Data, j: int) -> dict[str, Any]:
@@ -582,22 +753,20 @@ def _accuracy(d: _Data, col: _Collector, caveats: dict[str, Any]) -> dict[str, A
         }
         # one trial: FCE (1969) analytic interval; several trials: the ratings of an item are not
         # independent, so the interval comes from the item bootstrap (when the study asks for it)
-        clustered = d.t >= 2 and d.want_boot and _affordable(d, d.k * d.k)
-        if d.t >= 2 and d.want_boot and not clustered:
-            col.warn(
-                _path(base, "cohen_kappa"),
-                "The study is too large for an item bootstrap of this kappa: its analytic interval "
-                "treats the rater's repeated ratings of an item as independent and is too narrow.",
-            )
+        group = _cohen_group(d, col, j) if d.t >= 2 and d.want_boot else None
         est, boot, table = _cohen_guarded(
-            d, col, _path(base, "cohen_kappa"), p["a"], p["b"], None, clustered
+            d, col, _path(base, "cohen_kappa"), p["a"], p["b"], None, group
         )
-        entry["cohen_kappa"] = col.record(_path(base, "cohen_kappa"), est, boot)
+        entry["cohen_kappa"] = col.record(
+            _path(base, "cohen_kappa"), est, boot, too_large=TOO_LARGE_COHEN
+        )
         if d.ordinal:
             west, wboot, _ = _cohen_guarded(
-                d, col, _path(base, "weighted_kappa"), p["a"], p["b"], d.weights, clustered
+                d, col, _path(base, "weighted_kappa"), p["a"], p["b"], d.weights, group
             )
-            entry["weighted_kappa"] = col.record(_path(base, "weighted_kappa"), west, wboot)
+            entry["weighted_kappa"] = col.record(
+                _path(base, "weighted_kappa"), west, wboot, too_large=TOO_LARGE_COHEN
+            )
         counts = {"ratings": int(rated.sum()), "matching": int(match.sum())}
         if d.defect is not None:
             recs, dcounts = _defect_rates(d, col, base, p["sub"], rated, d.ref)
@@ -628,10 +797,10 @@ def _cohen_guarded(
     a: np.ndarray,
     b: np.ndarray,
     weights: np.ndarray | None,
-    features: bool,
-) -> tuple[Estimate, MaybeFeatures, np.ndarray | None]:
+    group: str | None,
+) -> tuple[Estimate, BootSpec | None, np.ndarray | None]:
     try:
-        est, boot, table = _cohen(a, b, d.k, d.n, d.t, weights, d.level, features=features)
+        est, boot, table = _cohen(a, b, d.k, weights, d.level, group)
     except (ValueError, ZeroDivisionError, FloatingPointError) as exc:
         return (
             Estimate(estimate=None, warnings=(f"could not be computed for these data: {exc}",)),
@@ -677,11 +846,18 @@ def _num(x: Any) -> float | None:
 
 
 def _reproducibility(d: _Data, col: _Collector, caveats: dict[str, Any]) -> dict[str, Any]:
+    from .stats.pairwise import pair_tables
+    from .stats.tables import count_patterns
+
     out: dict[str, Any] = {}
-    eligible, agree = _all_agree(d.counts)
+    eligible, agree = _all_agree(d.pat)
     out["agreement"] = col.record("reproducibility.agreement", _proportion(d, agree, eligible))
+    # the rater-pair tables (item × trial units) serve Light's kappa and the pairwise matrix
+    tables = _try(lambda: pair_tables(d.units, d.k))
     out.update(
-        _multi_rater(d, col, "reproducibility", d.counts, d.slots, d.units, d.t, by_category=True)
+        _multi_rater(
+            d, col, "reproducibility", d.pat, d.slots, d.units, tables, by_category=True
+        )
     )
     fl = out.get("_fleiss")
     out.pop("_fleiss", None)
@@ -692,23 +868,21 @@ def _reproducibility(d: _Data, col: _Collector, caveats: dict[str, Any]) -> dict
         }
     # pairwise Cohen's kappa between raters, trial-matched (item × trial units)
     out["pairwise_cohen_kappa"] = _pairwise(
-        d, col, d.units, "reproducibility.pairwise_cohen_kappa", caveats
+        d, col, d.units, tables, "reproducibility.pairwise_cohen_kappa", caveats
     )
     if d.t >= 2:
         by_trial: dict[str, Any] = {}
         for tt in range(d.t):
-            from .stats.tables import count_table
-
             codes_t = d.codes[:, :, tt]
-            c = np.asarray(count_table(codes_t, d.k), dtype=np.int64)
+            pat = count_patterns(codes_t, d.k)
             base = _path("reproducibility", "by_trial", tt + 1)
-            e2, a2 = _all_agree(c)
+            e2, a2 = _all_agree(pat)
             entry: dict[str, Any] = {
                 "agreement": col.record(_path(base, "agreement"), _proportion(d, a2, e2))
             }
             entry.update(
                 _multi_rater(
-                    d, col, base, c, codes_t, codes_t, 1, by_category=False, bootstrap=False
+                    d, col, base, pat, codes_t, codes_t, None, by_category=False, bootstrap=False
                 )
             )
             entry.pop("_fleiss", None)
@@ -721,24 +895,27 @@ def _multi_rater(
     d: _Data,
     col: _Collector,
     base: str,
-    counts: np.ndarray,
+    pat: CountPatterns,
     slots: np.ndarray,
     units: np.ndarray,
-    t: int,
+    tables: np.ndarray | None,
     *,
     by_category: bool,
     bootstrap: bool = True,
 ) -> dict[str, Any]:
     """The multi-rater coefficients of one layout (pooled slots, or a single trial).
 
-    ``bootstrap=False`` keeps the analytic intervals (the per-trial figures: they are read as a
-    check on drift between trials, the pooled figures carry the bootstrap).
+    ``pat`` holds the count patterns shared by every count-table coefficient; ``tables`` the
+    rater-pair tables of ``units`` when already built.  ``bootstrap=False`` keeps the analytic
+    intervals (the per-trial figures: they are read as a check on drift between trials, the
+    pooled figures carry the bootstrap).
     """
     from .stats.kendall import kendall_w
 
     out: dict[str, Any] = {}
     want = bootstrap and d.want_boot
-    res, boot, by_cat = _guarded_fleiss(counts, d, col, _path(base, "fleiss_kappa"), want)
+    group = _count_group(col, "pooled", pat, 0) if want else None
+    res, boot, by_cat = _guarded_fleiss(pat, d, col, _path(base, "fleiss_kappa"), group)
     out["fleiss_kappa"] = col.record(
         _path(base, "fleiss_kappa"), res.overall if res else _undefined_fleiss(), boot
     )
@@ -746,27 +923,30 @@ def _multi_rater(
     if by_category and res is not None:
         out["fleiss_kappa_by_category"] = {
             code: col.record(
-                _path(base, "fleiss_kappa_by_category", code), est, by_cat(j) if by_cat else None
+                _path(base, "fleiss_kappa_by_category", code), est, by_cat[j] if by_cat else None
             )
             for j, (code, est) in enumerate(zip(d.cats, res.by_category, strict=True))
         }
     level = "ordinal" if d.ordinal else "nominal"
-    for name, call in (
-        ("krippendorff_alpha", lambda: _krippendorff(counts, level, None, d.level, want)),
-        (
-            "krippendorff_alpha_interval",
-            (lambda: _krippendorff(counts, "interval", d.values, d.level, want))
-            if d.values is not None
-            else None,
-        ),
-        ("gwet_ac1", lambda: _gwet(counts, None, d.level, want)),
-        ("gwet_ac2", (lambda: _gwet(counts, d.weights, d.level, want)) if d.ordinal else None),
-        ("brennan_prediger", lambda: _brennan_prediger(counts, d.level, want)),
-        ("conger_kappa", lambda: _conger(d, units, t, want)),
-        ("light_kappa", lambda: _light(d, units, t, want)),
-    ):
-        if call is None:
-            continue
+    calls: list[tuple[str, Callable[[], tuple[Estimate, BootSpec | None]]]] = [
+        ("krippendorff_alpha", lambda: _krippendorff(pat, level, None, d.level, col, group)),
+    ]
+    if d.values is not None:
+        calls.append(
+            (
+                "krippendorff_alpha_interval",
+                lambda: _krippendorff(pat, "interval", d.values, d.level, col, group),
+            )
+        )
+    calls.append(("gwet_ac1", lambda: _gwet(pat, None, d.level, col, group)))
+    if d.ordinal:
+        calls.append(("gwet_ac2", lambda: _gwet(pat, d.weights, d.level, col, group)))
+    calls += [
+        ("brennan_prediger", lambda: _brennan_prediger(pat, d.level, col, group)),
+        ("conger_kappa", lambda: _conger(d, units, col, want)),
+        ("light_kappa", lambda: _light(d, units, tables, col, want)),
+    ]
+    for name, call in calls:
         path = _path(base, name)
         try:
             est, fboot = call()
@@ -775,13 +955,10 @@ def _multi_rater(
                 Estimate(estimate=None, warnings=(f"could not be computed for these data: {exc}",)),
                 None,
             )
-        out[name] = col.record(path, est, fboot)
-        if want and fboot is None and est.estimate is not None and est.ci_low is None:
-            col.warn(
-                path,
-                "No interval: this coefficient has no published analytic interval, and an item bootstrap "
-                "of it would be too large for this study (items × raters × resamples).",
-            )
+        too_large = TOO_LARGE_NO_INTERVAL if est.ci_low is None else TOO_LARGE_ANALYTIC
+        out[name] = col.record(path, est, fboot, too_large=too_large)
+        if want and fboot is None and est.estimate is not None:
+            col.warn(path, too_large)  # bootstrap ruled out before any work was done
     if d.ordinal:
         path = _path(base, "kendall_w")
         out["kendall_w"] = col.record(
@@ -791,13 +968,18 @@ def _multi_rater(
 
 
 def _pairwise(
-    d: _Data, col: _Collector, units: np.ndarray, base: str, caveats: dict[str, Any]
+    d: _Data,
+    col: _Collector,
+    units: np.ndarray,
+    tables: np.ndarray | None,
+    base: str,
+    caveats: dict[str, Any],
 ) -> dict[str, Any]:
     """Cohen's kappa of every pair of raters; the pairs' chance figures go to the caveats."""
     from .stats.pairwise import pairwise_cohen
 
     try:
-        mat = pairwise_cohen(units, d.k, confidence_level=d.level)
+        mat = pairwise_cohen(units, d.k, confidence_level=d.level, pair_tables=tables)
     except (ValueError, ZeroDivisionError, FloatingPointError) as exc:
         col.warn(base, f"Pairwise Cohen's kappa could not be computed for these data: {exc}")
         return {}
@@ -855,12 +1037,19 @@ def _panel_accuracy(d: _Data, col: _Collector) -> dict[str, Any]:
     return out
 
 
-def _ordinal(d: _Data, col: _Collector) -> dict[str, Any]:
+def _ordinal(
+    d: _Data, col: _Collector, results: dict[str, Any] | None = None
+) -> dict[str, Any]:
+    """Ordered-scale figures.  With ``results``, the exact and within-one-step agreement with
+    the reference are also recorded as ``accuracy.<rater>.exact_agreement`` /
+    ``within_one_agreement`` and ``panel_accuracy.exact_agreement`` / ``within_one_agreement``
+    (the same figures, named so that criteria can refer to them)."""
     from .stats.ordinal import mean_signed_offset, pair_distance_counts, signed_offset_counts
     from .stats.tables import count_table
 
     k = d.k
     out: dict[str, Any] = {}
+    shares: dict[str, tuple[Estimate, Estimate]] = {}
 
     def pairs_block(counts: np.ndarray) -> dict[str, Any]:
         dist = pair_distance_counts(counts)
@@ -892,11 +1081,12 @@ def _ordinal(d: _Data, col: _Collector) -> dict[str, Any]:
             exact = int(table[k - 1])
             within = int(table[max(0, k - 2) : k + 1].sum())
             mean = mean_signed_offset(off.sum(axis=1), rated.sum(axis=1), confidence_level=d.level)
+            exact_est = _proportion(d, exact, n_rated)
+            within_est = _proportion(d, within, n_rated)
+            shares[base] = (exact_est, within_est)
             return {
-                "exact": col.record(_path(base, "exact"), _proportion(d, exact, n_rated)),
-                "within_one_step": col.record(
-                    _path(base, "within_one_step"), _proportion(d, within, n_rated)
-                ),
+                "exact": col.record(_path(base, "exact"), exact_est),
+                "within_one_step": col.record(_path(base, "within_one_step"), within_est),
                 "mean_offset": col.record(_path(base, "mean_offset"), mean),
                 "offsets": _offset_table(table, k),
             }
@@ -906,6 +1096,23 @@ def _ordinal(d: _Data, col: _Collector) -> dict[str, Any]:
             for j, rid in enumerate(d.raters)
         }
         out["panel_accuracy"] = vs_ref(d.slots.astype(np.int64), "ordinal.panel_accuracy")
+        if results is not None:
+            targets = [
+                (results.get("accuracy", {}).get(rid), _path("ordinal", "accuracy", rid),
+                 _path("accuracy", rid))
+                for rid in d.raters
+            ]
+            targets.append(
+                (results.get("panel_accuracy"), "ordinal.panel_accuracy", "panel_accuracy")
+            )
+            for entry, src, dst in targets:
+                if entry is None or src not in shares:
+                    continue
+                exact_est, within_est = shares[src]
+                entry["exact_agreement"] = col.record(_path(dst, "exact_agreement"), exact_est)
+                entry["within_one_agreement"] = col.record(
+                    _path(dst, "within_one_agreement"), within_est
+                )
     return out
 
 
@@ -928,35 +1135,40 @@ def _items(d: _Data) -> tuple[list[dict[str, Any]], list[str]]:
         matches = has_ref
         ref_codes = [None] * d.n
     judged = has_ref & (m > 0)
-    share_l = share.tolist()
-    items: list[dict[str, Any]] = []
-    for i, (iid, cnt, mi, sh, aa, rc, mt, mg, jd) in enumerate(
-        zip(
+    # Built for speed at 100,000 items: every per-item value is computed with numpy, turned
+    # into plain Python objects once (.tolist()), and the dicts are made in one comprehension.
+    # The counts dict of an item is a copy of its count pattern's dict (a few thousand patterns).
+    pattern_counts = [dict(zip(d.cats, row, strict=True)) for row in d.pat.rows.tolist()]
+    counts_of = [pattern_counts[p] for p in d.pat.inverse.tolist()]
+    agreement = [None if x != x else x for x in share.tolist()]
+    several = (m >= 2).tolist()
+    all_agree_l = [a if s_ else None for a, s_ in zip(all_agree.tolist(), several, strict=True)]
+    judged_l = judged.tolist()
+    matching_l = [g if j else None for g, j in zip(matching.tolist(), judged_l, strict=True)]
+    matches_l = [x if j else None for x, j in zip(matches.tolist(), judged_l, strict=True)]
+    items: list[dict[str, Any]] = [
+        {
+            "id": iid,
+            "reference": rc,
+            "ratings": mi,
+            "counts": cnt.copy(),
+            "agreement": sh,
+            "all_agree": aa,
+            "matching_reference": mg,
+            "matches_reference": mt,
+        }
+        for iid, rc, mi, cnt, sh, aa, mg, mt in zip(
             d.ratings.items,
-            c.tolist(),
-            m.tolist(),
-            share_l,
-            all_agree.tolist(),
             ref_codes,
-            matches.tolist(),
-            matching.tolist(),
-            judged.tolist(),
+            m.tolist(),
+            counts_of,
+            agreement,
+            all_agree_l,
+            matching_l,
+            matches_l,
             strict=True,
         )
-    ):
-        del i
-        items.append(
-            {
-                "id": iid,
-                "reference": rc,
-                "ratings": mi,
-                "counts": dict(zip(d.cats, cnt, strict=True)),
-                "agreement": None if sh != sh else sh,
-                "all_agree": aa if mi >= 2 else None,
-                "matching_reference": mg if jd else None,
-                "matches_reference": mt if jd else None,
-            }
-        )
+    ]
     # hard items: disagreeing or missing the reference, least agreement first
     ref_share = np.where(judged, matching / np.maximum(m, 1), 1.0)
     agree_key = np.where(np.isnan(share), 1.0, share)
@@ -1047,6 +1259,37 @@ def _caveats(
 # --------------------------------------------------------------------------------------------
 
 
+def _choose_groups(d: _Data, col: _Collector, resamples: int) -> list[str]:
+    """The bootstrap groups that fit the work limit, most important first.
+
+    Every group shares one resample of items, drawn over the finest common partition of the
+    groups taken (items alike in all of them); the work is resamples × cells × features.
+    """
+    from .stats.bootstrap import refine
+
+    wanted = {b.group for b in col.boot.values()}
+    taken: list[str] = []
+    width = 0
+    label: np.ndarray | None = None  # the finest common partition of the groups taken
+    cells = 0
+    for name in sorted(wanted, key=lambda g: (col.groups[g].priority, g)):
+        grp = col.groups[name]
+        w = sum(bw for bname, (bw, _) in grp.blocks.items()
+                if any(b.group == name and b.block == bname for b in col.boot.values()))
+        p = grp.multiplicity.shape[0]
+        if label is None:
+            new_label, new_cells = np.asarray(grp.inverse, dtype=np.int64), p
+        else:
+            new_label, new_cells = refine(label, cells, grp.inverse, p)
+        work = new_cells * (width + w)
+        always = grp.priority == 0 and p * w <= FEATURE_CELLS_LIMIT
+        if always or (resamples * work <= BOOT_WORK_LIMIT and work <= FEATURE_CELLS_LIMIT):
+            taken.append(name)
+            width += w
+            label, cells = new_label, new_cells
+    return taken
+
+
 def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
     resamples = int(d.study.bootstrap_resamples)
     seed = d.study.bootstrap_seed
@@ -1064,20 +1307,37 @@ def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
         col.warn("bootstrap", "A single item cannot be resampled: intervals are analytic.")
         info["ci_method"] = "analytic"
         return info
-    from .stats.bootstrap import bootstrap_many
+    from .stats.bootstrap import FeatureGroup, bootstrap_groups
 
-    paths = list(col.boot)
-    res = bootstrap_many(
-        {p: col.boot[p].features for p in paths},
-        {p: col.boot[p].from_sums for p in paths},
-        resamples=resamples,
-        seed=seed,
-        confidence_level=d.level,
-        method="bca",
+    taken = _choose_groups(d, col, resamples)
+    views: dict[tuple[int, int, int], tuple[np.ndarray, np.ndarray]] = {}
+    groups: dict[str, FeatureGroup] = {}
+    stats: dict[str, tuple[str, Callable[[np.ndarray], np.ndarray]]] = {}
+    for name in taken:
+        grp = col.groups[name]
+        used = [bn for bn in grp.blocks if any(
+            b.group == name and b.block == bn for b in col.boot.values())]
+        mats = [grp.blocks[bn][1]() for bn in used]
+        edges = np.cumsum([0, *(m.shape[1] for m in mats)])
+        where = {bn: slice(int(edges[i]), int(edges[i + 1])) for i, bn in enumerate(used)}
+        feats = mats[0] if len(mats) == 1 else np.concatenate(mats, axis=1)
+        groups[name] = FeatureGroup(feats, grp.multiplicity, grp.inverse)
+        for path, b in col.boot.items():
+            if b.group == name:
+                fn = b.from_sums if len(mats) == 1 else _BlockFn(b.from_sums, where[b.block], views)
+                stats[path] = (name, fn)
+    for path, b in col.boot.items():
+        if b.group not in taken:
+            col.warn(path, b.too_large)
+    res = bootstrap_groups(
+        groups, stats, resamples=resamples, seed=seed, confidence_level=d.level, method="bca"
     )
+    views.clear()
     methods: set[str] = set()
-    used: list[str] = []
-    for p in paths:
+    used_paths: list[str] = []
+    for p in col.boot:
+        if p not in res:
+            continue
         br = res[p]
         for w in br.warnings:
             col.warn(p, w)
@@ -1093,28 +1353,70 @@ def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
         rec["ci_high"] = br.ci_high
         rec["ci_method"] = br.method
         methods.add(br.method)
-        used.append(p)
+        used_paths.append(p)
     info["ci_method"] = (
         sorted(methods)[0] if len(methods) == 1 else ", ".join(sorted(methods)) or "analytic"
     )
-    info["measures"] = used
+    info["measures"] = used_paths
     return info
 
 
-def _jsonable(x: Any, col: _Collector, path: tuple[str, ...] = ()) -> Any:
-    """Plain JSON data: numpy scalars and arrays to Python, non-finite floats to None (with a warning)."""
+class _BlockFn:
+    """``from_sums`` of one block of a group's side-by-side features.
+
+    The column slice of a batch is taken once per input array (kept alive and compared by
+    identity), so that every statistic of a block sees the same array object and shared
+    evaluations (:class:`_Shared`) are computed once.
+    """
+
+    def __init__(
+        self,
+        fn: Callable[[np.ndarray], np.ndarray],
+        sl: slice,
+        views: dict[tuple[int, int, int], tuple[np.ndarray, np.ndarray]],
+    ) -> None:
+        self.fn, self.sl, self.views = fn, sl, views
+
+    def __call__(self, s: np.ndarray) -> np.ndarray:
+        key = (id(s), self.sl.start, self.sl.stop)
+        hit = self.views.get(key)
+        if hit is None or hit[0] is not s:
+            hit = (s, s[..., self.sl])
+            self.views[key] = hit
+        return self.fn(hit[1])
+
+
+_PLAIN = (type(None), str, bool, int)
+
+
+def _jsonable(x: Any, col: _Collector, path: tuple[Any, ...] = ()) -> Any:
+    """Plain JSON data: numpy scalars and arrays to Python, non-finite floats to None (with a warning).
+
+    ``path`` is a chain of ``(parent, key)`` pairs, spelt out only when a warning needs it.
+    """
     t = type(x)
-    if x is None or t is str or t is bool or t is int:
+    if t in _PLAIN:
         return x
     if t is float:
         if math.isfinite(x):
             return x
-        col.warn(".".join(path), "A figure was not a finite number and is shown as undefined.")
+        col.warn(_spell(path), "A figure was not a finite number and is shown as undefined.")
         return None
     if t is dict:
-        return {str(key): _jsonable(v, col, (*path, str(key))) for key, v in x.items()}
+        out = {}
+        for key, v in x.items():
+            key = key if type(key) is str else str(key)
+            tv = type(v)
+            out[key] = v if tv in _PLAIN or (tv is float and math.isfinite(v)) else _jsonable(
+                v, col, (path, key)
+            )
+        return out
     if t is list or t is tuple:
-        return [_jsonable(v, col, path) for v in x]
+        return [
+            v if type(v) in _PLAIN or (type(v) is float and math.isfinite(v))
+            else _jsonable(v, col, path)
+            for v in x
+        ]
     if isinstance(x, np.ndarray):
         return _jsonable(x.tolist(), col, path)
     if isinstance(x, (bool, np.bool_)):
@@ -1126,8 +1428,17 @@ def _jsonable(x: Any, col: _Collector, path: tuple[str, ...] = ()) -> Any:
     if isinstance(x, str):
         return str(x)
     raise TypeError(
-        f"results hold a value JSON cannot carry at {'.'.join(path)}: {type(x).__name__}"
+        f"results hold a value JSON cannot carry at {_spell(path)}: {type(x).__name__}"
     )
+
+
+def _spell(path: tuple[Any, ...]) -> str:
+    """'a.b.c' from the chain ``(((), 'a'), 'b'), 'c')``."""
+    keys: list[str] = []
+    while path:
+        path, key = path
+        keys.append(key)
+    return ".".join(reversed(keys))
 
 
 # --------------------------------------------------------------------------------------------
@@ -1140,6 +1451,19 @@ def analyse(study: Study, ratings: Ratings, *, progress: Progress | None = None)
 
     ``progress`` (optional) is called with a short text before each long step.
     """
+    # The results hold one record per item (100,000 in a labelling campaign); the cyclic
+    # garbage collector would walk every one of them again and again while they are built, for
+    # nothing (they form no cycles), so it is paused for the duration.
+    paused = gc.isenabled()
+    gc.disable()
+    try:
+        return _analyse(study, ratings, progress)
+    finally:
+        if paused:
+            gc.enable()
+
+
+def _analyse(study: Study, ratings: Ratings, progress: Progress | None) -> dict[str, Any]:
 
     def say(msg: str) -> None:
         if progress is not None:
@@ -1212,7 +1536,7 @@ def analyse(study: Study, ratings: Ratings, *, progress: Progress | None = None)
 
     if d.ordinal:
         say("ordered-scale agreement")
-        results["ordinal"] = _ordinal(d, col)
+        results["ordinal"] = _ordinal(d, col, results)
 
     if col.boot and study.bootstrap_resamples > 0:
         say(f"bootstrap intervals ({study.bootstrap_resamples} resamples of items)")

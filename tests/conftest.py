@@ -166,3 +166,53 @@ def run_cli(capsys: pytest.CaptureFixture[str]) -> Callable[..., tuple[int, str,
         return code, out, err
 
     return run
+
+
+# --------------------------------------------------------------------------------------------
+# One run of `reportgen demo`, shared by every test module (tests/render, tests/test_examples)
+# --------------------------------------------------------------------------------------------
+
+#: the build time of the shared demo run (given as SOURCE_DATE_EPOCH): 2026-11-20T09:00:00Z
+DEMO_GENERATED_AT = "2026-11-20T09:00:00Z"
+DEMO_EPOCH = 1795165200
+
+
+class DemoRun:
+    """The outcome of one ``reportgen demo --output OUT`` over the repository's studies/."""
+
+    def __init__(self, out: Path, result: Any) -> None:
+        self.out = out
+        self.result = result  # click.testing.Result
+        self.exit_code: int = result.exit_code
+        self.output: str = result.output
+
+    def folder(self, study_id: str, revision: int = 1) -> Path:
+        """The revision folder the demo built for ``study_id``."""
+        return self.out / study_id / f"rev{revision}"
+
+
+@pytest.fixture(scope="session")
+def demo_run_once(tmp_path_factory: pytest.TempPathFactory) -> DemoRun:
+    """``reportgen demo`` over studies/, run once per test session into a fresh folder.
+
+    Building the three demo reports takes the better part of half a minute, so the render
+    tests (tests/render/conftest.py: built_binary, built_ordinal, built_nominal) and the demo
+    tests (tests/test_examples.py) all read this one run.  It is built at DEMO_GENERATED_AT
+    through SOURCE_DATE_EPOCH, with CI unset so that the demo prints its lines.  Tests must
+    not write into it.
+    """
+    import datetime as dt
+
+    from click.testing import CliRunner
+
+    from reportgen.cli import cli
+
+    assert (
+        dt.datetime.fromtimestamp(DEMO_EPOCH, tz=dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+        == DEMO_GENERATED_AT
+    )
+    studies = Path(__file__).resolve().parents[1] / "studies"
+    out = tmp_path_factory.mktemp("demo-run")
+    runner = CliRunner(env={"SOURCE_DATE_EPOCH": str(DEMO_EPOCH), "CI": None})
+    res = runner.invoke(cli, ["demo", "--output", str(out), "--studies", str(studies)])
+    return DemoRun(out, res)

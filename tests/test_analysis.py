@@ -730,3 +730,207 @@ def test_json_cleaning_turns_numpy_and_nan_into_plain_values() -> None:
         {"measure": "c", "message": "A figure was not a finite number and is shown as undefined."}
     ]
     json.dumps(out, allow_nan=False)
+
+
+# ---------------------------------------------------------------------------------------------
+# named agreement shares, category names in warnings, interval range, degenerate units
+# ---------------------------------------------------------------------------------------------
+
+
+def test_exact_and_within_one_agreement_records(design_b: dict[str, Any]) -> None:
+    """Design B by hand: R1 (A C C vs A B C) 2 of 3 exact, 3 of 3 within one step; R2 (B B B)
+    1 of 3 exact, 3 of 3 within one; panel 3 of 6 exact, 6 of 6 within one."""
+    acc = design_b["accuracy"]
+    r1, r2 = acc["R1"], acc["R2"]
+    assert set(r1["exact_agreement"]) == M_KEYS
+    assert (r1["exact_agreement"]["agreeing"], r1["exact_agreement"]["items"]) == (2, 3)
+    assert (r2["exact_agreement"]["agreeing"], r2["exact_agreement"]["items"]) == (1, 3)
+    assert (r1["within_one_agreement"]["agreeing"], r1["within_one_agreement"]["items"]) == (3, 3)
+    assert r1["within_one_agreement"]["estimate"] == 1.0
+    # the same records as the ordinal block (same counts, same interval)
+    od = design_b["ordinal"]["accuracy"]
+    assert r1["exact_agreement"] == od["R1"]["exact"]
+    assert r2["within_one_agreement"] == od["R2"]["within_one_step"]
+    pa = design_b["panel_accuracy"]
+    assert (pa["exact_agreement"]["agreeing"], pa["exact_agreement"]["items"]) == (3, 6)
+    assert (pa["within_one_agreement"]["agreeing"], pa["within_one_agreement"]["items"]) == (6, 6)
+    assert pa["exact_agreement"] == design_b["ordinal"]["panel_accuracy"]["exact"]
+    assert "accuracy.exact_agreement" in design_b["conventions"]
+
+
+def test_exact_agreement_absent_on_nominal_scales(design_a: dict[str, Any]) -> None:
+    for entry in design_a["accuracy"].values():
+        assert "exact_agreement" not in entry and "within_one_agreement" not in entry
+    assert "exact_agreement" not in design_a["panel_accuracy"]
+
+
+def test_fleiss_category_warnings_name_the_code() -> None:
+    # category "D" is declared but never used: its per-category kappa is undefined
+    study = make_study(scale="nominal", codes=("A", "B", "C", "D"), defect=None, trials=1)
+    codes = np.array([[[0], [0]], [[1], [1]], [[2], [1]], [[0], [2]], [[1], [1]]])
+    res = analyse(study, make_ratings(study, codes))
+    assert res["reproducibility"]["fleiss_kappa_by_category"]["D"]["estimate"] is None
+    msgs = [w["message"] for w in res["warnings"]
+            if w["measure"] == "reproducibility.fleiss_kappa_by_category.D"]
+    assert any("category D" in m for m in msgs), msgs
+    assert not any("category 3" in m for m in msgs)
+
+
+def test_analytic_repeatability_interval_stays_within_range() -> None:
+    """No resamples: the repeatability Fleiss interval is Gwet's analytic one, cut to -1 .. 1
+    with a warning when it overshoots (it reached 1.0098 before)."""
+    study = make_study(bootstrap_resamples=0, raters=("R1",), trials=3)
+    # six items, three trials each: near-perfect repeatability on few items
+    codes = np.array([[[0, 0, 0]], [[0, 0, 0]], [[1, 1, 1]], [[1, 1, 1]], [[0, 0, 1]], [[0, 0, 0]]])
+    res = analyse(study, make_ratings(study, codes, [0, 0, 1, 1, 0, 0]))
+    fk = res["repeatability"]["R1"]["fleiss_kappa"]
+    assert fk["ci_method"] == "analytic (Gwet)"
+    assert -1.0 <= fk["ci_low"] <= fk["estimate"] <= fk["ci_high"] == 1.0
+    assert any(w["measure"] == "repeatability.R1.fleiss_kappa" and "cut to the range" in w["message"]
+               for w in res["warnings"])
+
+
+def test_no_unit_with_two_ratings_gives_worded_undefined_conger() -> None:
+    """Each rater rated in a different trial: no item × trial unit has two ratings."""
+    study = make_study(bootstrap_resamples=200, missing="allow")
+    codes = np.array(
+        [[[0, -1], [-1, 0]], [[1, -1], [-1, 1]], [[0, -1], [-1, 1]], [[1, -1], [-1, 0]]]
+    )
+    res = analyse(study, make_ratings(study, codes, [0, 1, 0, 1]))
+    cg = res["reproducibility"]["conger_kappa"]
+    assert cg["estimate"] is None
+    assert any(w["measure"] == "reproducibility.conger_kappa" and "undefined" in w["message"]
+               for w in res["warnings"])
+    dumps(res)
+
+
+# ---------------------------------------------------------------------------------------------
+# the shared bootstrap and the count patterns
+# ---------------------------------------------------------------------------------------------
+
+
+def test_compressed_study_matches_the_core_on_full_tables() -> None:
+    """Above 512 items the count table is compressed into patterns once; every count-table
+    coefficient must equal the core's value on the full items × categories table (1e-12)."""
+    from reportgen.stats.fleiss import fleiss_kappa
+    from reportgen.stats.gwet import brennan_prediger, gwet_ac
+    from reportgen.stats.krippendorff import krippendorff_alpha
+    from reportgen.stats.tables import count_table
+
+    study, ratings = random_study(900, 4, 2, 4, seed=21, resamples=0)
+    res = analyse(study, ratings)
+    table = count_table(np.asarray(ratings.codes).reshape(900, -1), 4)
+    rp = res["reproducibility"]
+    fl = fleiss_kappa(table)
+    assert rp["fleiss_kappa"]["estimate"] == pytest.approx(fl.overall.estimate, abs=1e-12)
+    assert rp["fleiss_kappa"]["se"] == pytest.approx(fl.overall.se, abs=1e-12)
+    for j, code in enumerate(study.category_codes):
+        assert rp["fleiss_kappa_by_category"][code]["estimate"] == pytest.approx(
+            fl.by_category[j].estimate, abs=1e-12
+        )
+    assert rp["krippendorff_alpha"]["estimate"] == pytest.approx(
+        krippendorff_alpha(table, level="ordinal").estimate, abs=1e-12
+    )
+    assert rp["gwet_ac1"]["estimate"] == pytest.approx(gwet_ac(table).estimate, abs=1e-12)
+    assert rp["brennan_prediger"]["estimate"] == pytest.approx(
+        brennan_prediger(table).estimate, abs=1e-12
+    )
+    assert res["reproducibility"]["agreement"]["agreeing"] == int(
+        ((table.max(axis=1) == table.sum(axis=1)) & (table.sum(axis=1) >= 2)).sum()
+    )
+
+
+def test_every_family_is_bootstrapped_on_one_resample() -> None:
+    study, ratings = random_study(50, 3, 3, 4, seed=6, resamples=400)
+    res = analyse(study, ratings)
+    measures = set(res["bootstrap"]["measures"])
+    for path in (
+        "reproducibility.fleiss_kappa",
+        "reproducibility.fleiss_kappa_by_category.A",
+        "reproducibility.krippendorff_alpha",
+        "reproducibility.gwet_ac2",
+        "reproducibility.conger_kappa",
+        "reproducibility.light_kappa",
+        "repeatability.R2.fleiss_kappa",
+        "accuracy.R3.cohen_kappa",
+        "accuracy.R3.weighted_kappa",
+    ):
+        assert path in measures, path
+    assert res == analyse(study, ratings)  # reproducible under the study's seed
+
+
+def test_rater_identified_bootstrap_dropped_in_words_when_too_large(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    import reportgen.analysis as analysis
+
+    monkeypatch.setattr(analysis, "BOOT_WORK_LIMIT", 1)
+    study, ratings = random_study(40, 3, 2, 3, seed=3, resamples=300)
+    res = analyse(study, ratings)
+    measures = res["bootstrap"]["measures"]
+    assert "reproducibility.fleiss_kappa" in measures  # the count patterns always fit
+    for path in ("reproducibility.conger_kappa", "reproducibility.light_kappa",
+                 "accuracy.R1.cohen_kappa", "repeatability.R1.fleiss_kappa"):
+        assert path not in measures
+        assert any(w["measure"] == path and "too large" in w["message"] for w in res["warnings"]), path
+    assert res["reproducibility"]["light_kappa"]["ci_low"] is None  # none published
+    # the per-rater kappa keeps its analytic interval (and the warning says it is too narrow)
+    ck = res["accuracy"]["R1"]["cohen_kappa"]
+    assert ck["ci_method"] == "analytic (Fleiss-Cohen-Everitt 1969)" and ck["ci_low"] is not None
+
+
+@pytest.mark.slow
+def test_labelling_campaign_memory() -> None:
+    """Transient memory of the count-table coefficients with their bootstrap at campaign size
+    (100,000 items × 20 raters, 5 categories, 5 % missing) stays under 100 MB beyond the
+    ratings; the whole analysis, with 100,000 item records kept, under 150 MB."""
+    import tracemalloc
+
+    from reportgen.stats.bootstrap import FeatureGroup, bootstrap_groups
+    from reportgen.stats.fleiss import (
+        fleiss_kappa,
+        fleiss_kappa_by_category_from_sums,
+        fleiss_kappa_features,
+        fleiss_kappa_from_sums,
+    )
+    from reportgen.stats.gwet import gwet_ac, gwet_ac_features
+    from reportgen.stats.krippendorff import krippendorff_alpha, krippendorff_alpha_features
+    from reportgen.stats.tables import count_patterns
+
+    rng = np.random.default_rng(1)
+    n, r, k = 100_000, 20, 5
+    truth = rng.integers(0, k, n)
+    codes = np.where(rng.random((n, r)) < 0.8, truth[:, None], rng.integers(0, k, (n, r)))
+    codes[rng.random((n, r)) < 0.05] = -1
+    codes = codes.astype(np.int8)
+    tracemalloc.start()
+    try:
+        base = tracemalloc.get_traced_memory()[0]
+        pat = count_patterns(codes, k)
+        fleiss_kappa(pat)
+        for level in ("nominal", "ordinal", "interval"):
+            krippendorff_alpha(pat, level=level)  # type: ignore[arg-type]
+        gwet_ac(pat)
+        gwet_ac(pat, weights="quadratic")
+        f = np.concatenate(
+            [fleiss_kappa_features(pat.rows), krippendorff_alpha_features(pat.rows),
+             gwet_ac_features(pat.rows), gwet_ac_features(pat.rows, weights="quadratic")], axis=1
+        )
+        stats = {"fleiss": ("c", lambda s: fleiss_kappa_from_sums(s[..., :13]))}
+        for j in range(k):
+            stats[f"c{j}"] = ("c", lambda s, j=j: fleiss_kappa_by_category_from_sums(s[..., :13])[..., j])
+        bootstrap_groups({"c": FeatureGroup(f, pat.multiplicity, pat.inverse)}, stats,
+                         resamples=2000, seed=1)
+        peak = tracemalloc.get_traced_memory()[1] - base
+        assert peak < 100 * 2**20, f"{peak / 2**20:.0f} MB"
+        study = make_study(scale="ordinal", codes=tuple("ABCDE"),
+                           raters=tuple(f"R{i}" for i in range(r)), trials=1, defect=None,
+                           bootstrap_resamples=2000, missing="allow")
+        ratings = make_ratings(study, codes[:, :, None])
+        tracemalloc.reset_peak()
+        base = tracemalloc.get_traced_memory()[0]
+        analyse(study, ratings)
+        peak = tracemalloc.get_traced_memory()[1] - base
+        assert peak < 150 * 2**20, f"{peak / 2**20:.0f} MB"
+    finally:
+        tracemalloc.stop()

@@ -170,15 +170,10 @@ def test_seal_check_certifies_only_the_inspector_on_target() -> None:
 
 
 @pytest.fixture(scope="module")
-def demo_run(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Any]:
-    """One run of `reportgen demo` (building every report takes a while)."""
-    from click.testing import CliRunner
-
-    from reportgen.cli import cli
-
-    out = tmp_path_factory.mktemp("demo")
-    res = CliRunner().invoke(cli, ["demo", "--output", str(out), "--studies", str(STUDIES)])
-    return out, res
+def demo_run(demo_run_once: Any) -> tuple[Path, Any]:
+    """The one run of `reportgen demo` of the test session (tests/conftest.py), shared with
+    the render tests: building every report takes a while."""
+    return demo_run_once.out, demo_run_once.result
 
 
 @pytest.mark.slow
@@ -193,6 +188,51 @@ def test_demo_command_runs_every_study(demo_run: tuple[Path, Any]) -> None:
         line = next(x for x in res.output.splitlines() if x.startswith(f"{sid}:"))
         if HAS_VERDICT:
             assert line.endswith(f"-> {verdict}")
+
+
+@pytest.mark.slow
+def test_demo_on_a_fresh_folder_builds_final_reports(demo_run: tuple[Path, Any]) -> None:
+    out, res = demo_run
+    assert res.exit_code == 0, res.output
+    assert "DRAFT" not in res.output
+    for sid, *_rest in EXPECTED.values():
+        html = (out / sid / "rev1" / f"{sid}-rev1.html").read_text(encoding="utf-8")
+        assert '<body class="draft"' not in html and "DRAFT" not in html, sid
+
+
+@pytest.mark.slow
+@pytest.mark.filterwarnings(
+    "ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning"
+)
+def test_demo_twice_rebuilds_an_existing_revision_as_a_draft(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """`make demo` twice in a row: the second run rebuilds as drafts and says so per study.
+    (On a small invented study, so that it takes seconds: tests/_built.py.)"""
+    from _built import study_files
+    from click.testing import CliRunner
+
+    from reportgen.cli import cli
+
+    study_files(tmp_path / "studies" / "lugs")
+    out = tmp_path / "output"
+    args = ["demo", "--output", str(out), "--studies", str(tmp_path / "studies")]
+    runner = CliRunner(env={"CI": None})
+    first = runner.invoke(cli, args)
+    assert first.exit_code == 0, first.output
+    line = next(x for x in first.output.splitlines() if x.startswith("LUG-CHECK:"))
+    assert line.endswith("-> PASS") or line.endswith("-> IMPROVE")
+    html = out / "LUG-CHECK" / "rev1" / "LUG-CHECK-rev1.html"
+    assert '<body class="draft"' not in html.read_text(encoding="utf-8")
+    second = runner.invoke(cli, args)
+    assert second.exit_code == 0, second.output
+    line2 = next(x for x in second.output.splitlines() if x.startswith("LUG-CHECK:"))
+    assert line2 == line + (
+        " (DRAFT: revision 1 was built before, so it was rebuilt as a draft; raise "
+        "study.revision or use a new --output folder for a final report)"
+    )
+    assert '<body class="draft"' in html.read_text(encoding="utf-8")
+    assert sorted(p.name for p in (out / "LUG-CHECK").iterdir()) == ["rev1"]
 
 
 def test_demo_command_quiet_prints_nothing(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

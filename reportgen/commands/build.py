@@ -50,6 +50,21 @@ class StrictWarnings(ReportgenError):
 @click.option(
     "--no-pdf", "no_pdf", is_flag=True, help="Write the HTML, charts and results.json only."
 )
+@click.option(
+    "--archive",
+    "archive",
+    is_flag=True,
+    help="After building, copy the revision into the archive and index it (as `reportgen archive`). "
+    "Not with --replace: drafts are not archived.",
+)
+@click.option(
+    "--archive-dir",
+    "archive_dir",
+    type=click.Path(file_okay=False, path_type=Path),
+    default=None,
+    metavar="DIR",
+    help="Archive folder for --archive (default: $REPORTGEN_ARCHIVE, else archive/ beside output/).",
+)
 @click.option("--quiet", is_flag=True, help="Print nothing but errors.")
 def command(
     study_file: Path,
@@ -58,9 +73,22 @@ def command(
     generated_at: str | None,
     strict: bool,
     no_pdf: bool,
+    archive: bool,
+    archive_dir: Path | None,
     quiet: bool,
 ) -> None:
     """Build the report of STUDY_FILE: HTML and PDF/A-3b with charts, results.json beside them."""
+    if archive and replace:
+        raise click.UsageError(
+            "--archive cannot be used with --replace: a draft is not archived. Raise "
+            "study.revision in the study definition and build again with --archive."
+        )
+    if archive and no_pdf:
+        raise click.UsageError(
+            "--archive cannot be used with --no-pdf: the archive keeps the report PDF."
+        )
+    if archive_dir is not None and not archive:
+        raise click.UsageError("--archive-dir is used only together with --archive.")
     from ..ratings import load_ratings
     from ..render.build import build_report, compute_results, resolve_generated_at, revision_dir
     from ..study import load_study
@@ -103,6 +131,22 @@ def command(
         ratings=ratings,
         results=results,
     )
+    archived_in: Path | None = None
+    if archive:
+        from ..archive import archive_revision, resolve_archive_dir
+
+        root = resolve_archive_dir(archive_dir, revision_dir=folder)
+        progress("archiving")
+        try:
+            entry = archive_revision(folder, archive_dir=root, progress=progress)
+        except ReportgenError:
+            click.echo(
+                f"{study.id} revision {study.revision}: the report was built in {folder}, "
+                "but it could not be archived:",
+                err=True,
+            )
+            raise
+        archived_in = root / entry.folder
     if not quiet:
         verdict = results.get("verdict") or {}
         outcome = verdict.get("outcome") if isinstance(verdict, dict) else verdict
@@ -111,6 +155,8 @@ def command(
         )
         for p in sorted(folder.iterdir()):
             click.echo(f"  wrote {p}")
+        if archived_in is not None:
+            click.echo(f"  archived in {archived_in}")
         if warnings:
             click.echo(f"  {len(warnings)} warning(s): see the data integrity section", err=True)
         click.echo(f"  took {time.perf_counter() - start:.1f} s", err=True)

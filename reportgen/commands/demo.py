@@ -2,9 +2,11 @@
 
 For each ``studies/*/study.yaml``: load and check the study and its ratings, compute the
 results, judge them against the study's criteria (when the verdict module is present), and
-build the report into the output folder (when the report builder is present; a demo run
-replaces an earlier draft).  Without the report builder the results are written as
-``<output>/<study-id>/results.json``.  Only click is imported at module level.
+build the report into the output folder (when the report builder is present).  A revision
+folder that does not exist yet is built as a final report, as ``reportgen build`` would; one
+that exists (an earlier demo run) is rebuilt as a DRAFT, and the study's line says so.
+Without the report builder the results are written as ``<output>/<study-id>/results.json``.
+Only click is imported at module level.
 """
 
 from __future__ import annotations
@@ -66,8 +68,9 @@ def run_demo_study(path: Path, *, output: Path, quiet: bool = True) -> dict[str,
 
     Check (load the study and its ratings: every input problem raises InputError), compute the
     results, judge them when the verdict module is present, then build the report when the
-    report builder is present (a demo build replaces an earlier draft), else write
-    ``<output>/<study-id>/results.json``.
+    report builder is present, else write ``<output>/<study-id>/results.json``.  The report is
+    final when its revision folder is new; an existing folder is rebuilt as a draft
+    (``summary["draft"]`` is then True).
     """
     from ..analysis import analyse
     from ..ratings import load_ratings
@@ -89,12 +92,16 @@ def run_demo_study(path: Path, *, output: Path, quiet: bool = True) -> dict[str,
         "trials": ratings.n_trials,
         "verdict": verdict.get("outcome") if isinstance(verdict, dict) else verdict,
         "written": [],
+        "draft": False,
     }
     if _has("reportgen.render.build", "build_report"):
-        from ..render.build import build_report
+        from ..render.build import build_report, revision_dir
 
+        draft = revision_dir(output, study).exists()
+        summary["draft"] = draft
+        summary["revision"] = study.revision
         built = build_report(
-            study, output_dir=output, replace=True, ratings=ratings, results=results
+            study, output_dir=output, replace=draft, ratings=ratings, results=results
         )
         summary["written"] = [str(p) for p in _paths_of(built)]
         return summary
@@ -163,9 +170,15 @@ def command(output: Path, studies: Path | None, quiet: bool) -> None:
             click.echo(f"[{n}/{len(paths)}] {path.parent.name} …", err=True)
         info = run_demo_study(path, output=output, quiet=quiet)
         if not quiet:
+            draft = (
+                f" (DRAFT: revision {info.get('revision', '?')} was built before, so it was rebuilt "
+                "as a draft; raise study.revision or use a new --output folder for a final report)"
+                if info.get("draft")
+                else ""
+            )
             click.echo(
                 f"{info['study']}: {info['items']} items, {info['raters']} raters, "
-                f"{info['trials']} trial(s) -> {_verdict_text(info['verdict'])}"
+                f"{info['trials']} trial(s) -> {_verdict_text(info['verdict'])}{draft}"
             )
             for written in info["written"]:
                 click.echo(f"  wrote {written}")

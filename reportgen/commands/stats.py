@@ -290,6 +290,34 @@ def _verdict_lines(results: dict[str, Any]) -> list[str]:
     return lines
 
 
+_ITEMS_SLOT = "__reportgen_items_slot_5b1e__"
+
+
+def dumps_results(results: dict[str, Any]) -> str:
+    """The results as JSON text: indented by two spaces, one line per item record.
+
+    Same data as ``json.dumps(results, indent=2)``; the item list (100,000 records in a labelling
+    campaign) is written one compact record per line with the C encoder, which is several times
+    faster than Python's indenting encoder and keeps the file readable.
+    """
+    import json
+
+    items = results.get("items")
+    if not isinstance(items, list) or not items:
+        return json.dumps(results, indent=2, allow_nan=False)
+    head = json.dumps({**results, "items": _ITEMS_SLOT}, indent=2, allow_nan=False)
+    slot = f'"items": "{_ITEMS_SLOT}"'
+    at = head.index(slot)
+    line_start = head.rindex("\n", 0, at) + 1
+    pad = head[line_start:at]
+    # One C-encoder pass over the list; then a line break before every record.  Each record
+    # opens with its "id" key and no nested object has one, and a quote inside a JSON string is
+    # always escaped, so '}, {"id": ' occurs only between two records.
+    body = json.dumps(items, allow_nan=False)[1:-1]
+    body = body.replace('}, {"id": ', f'}},\n{pad}  {{"id": ')
+    return f'{head[:at]}"items": [\n{pad}  {body}\n{pad}]{head[at + len(slot):]}'
+
+
 def _show_progress(quiet: bool) -> bool:
     return not quiet and not os.environ.get("CI") and sys.stderr.isatty()
 
@@ -305,8 +333,6 @@ def _show_progress(quiet: bool) -> bool:
 @click.option("--quiet", "-q", is_flag=True, help="No progress messages.")
 def command(study_path: str, as_json: bool, quiet: bool) -> None:
     """Compute every agreement figure of a study and print a summary (or the JSON results)."""
-    import json
-
     from ..analysis import analyse
     from ..ratings import load_ratings
     from ..study import load_study
@@ -323,6 +349,6 @@ def command(study_path: str, as_json: bool, quiet: bool) -> None:
     results = analyse(study, ratings, progress=progress)
     results.update(judge(study, results))
     if as_json:
-        click.echo(json.dumps(results, indent=2, allow_nan=False))
+        click.echo(dumps_results(results))
     else:
         click.echo(format_summary(results))

@@ -113,12 +113,13 @@ def _attachments(study: Study, ratings: Ratings | None, results_json: bytes) -> 
         atts.append(PdfAttachment(name, data, desc, rel))
 
     add(study.path.name, study.path.read_bytes(), "Study definition", "Source")
+    what = {"ratings": "Ratings file", "reference": "Reference file", "key": "Plan key file"}
     for s in ratings.sources if ratings else ():
-        if s.role in ("ratings", "reference"):
+        if s.role in what:
             add(
                 s.path.name,
                 s.path.read_bytes(),
-                f"{s.role.capitalize()} file as read (SHA-256 {s.sha256})",
+                f"{what[s.role]} as read (SHA-256 {s.sha256})",
                 "Data",
             )
     add(
@@ -139,8 +140,12 @@ def render_report(
     draft: bool = False,
     pdf: bool = True,
     progress: Progress | None = None,
+    plan: Mapping[str, Any] | None = None,
 ) -> RenderedReport:
-    """Render charts, HTML and PDF in memory from already computed (and judged) results."""
+    """Render charts, HTML and PDF in memory from already computed (and judged) results.
+
+    ``plan`` is the study's plan summary (see :func:`find_plan`), shown in the design section.
+    """
     from .charts import report_charts
     from .context import build_context, rater_dicts, verdict_view
     from .html import check_glyphs, render_html
@@ -154,7 +159,7 @@ def render_report(
     timings["charts"] = time.perf_counter() - t0
     t0 = time.perf_counter()
     ctx = build_context(
-        study, ratings, results, generated_at=generated_at, draft=draft, charts=charts
+        study, ratings, results, generated_at=generated_at, draft=draft, charts=charts, plan=plan
     )
     say("HTML")
     rendered = render_html(ctx, override_dir=study.templates_path)
@@ -201,6 +206,20 @@ def _user_text(study: Study, ratings: Ratings | None) -> str:
     if ratings is not None:
         parts += list(ratings.items)
     return "\n".join(parts)
+
+
+def find_plan(study: Study, *, output_dir: Path | None) -> dict[str, Any] | None:
+    """The plan summary ``reportgen plan`` recorded for the study, or None (see plan.py)."""
+    from ..plan import find_plan_summary
+
+    try:
+        return find_plan_summary(study, output_dir=output_dir)
+    except (OSError, ValueError) as exc:  # a plan.json that cannot be read
+        raise InputError.single(
+            study.path,
+            f"the plan summary (plan.json) of this study cannot be read: {exc}",
+            hint="restore plan.json from the plan folder `reportgen plan` wrote, or remove it",
+        ) from None
 
 
 def revision_dir(output_dir: Path, study: Study) -> Path:
@@ -298,8 +317,16 @@ def build_report(
         ratings = load_ratings(study)
     if results is None:
         results = compute_results(study, ratings, progress=progress)
+    plan = find_plan(study, output_dir=Path(output_dir))
     rendered = render_report(
-        study, ratings, results, generated_at=when, draft=replace, pdf=pdf, progress=progress
+        study,
+        ratings,
+        results,
+        generated_at=when,
+        draft=replace,
+        pdf=pdf,
+        progress=progress,
+        plan=plan,
     )
     say("writing")
     return write_folder(target, rendered.files(), replace=replace)

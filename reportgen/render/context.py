@@ -66,13 +66,22 @@ REPRO_ORDER = (
 ACCURACY_ORDER = (
     "agreement",
     "effectiveness",
+    "exact_agreement",
+    "within_one_agreement",
     "cohen_kappa",
     "weighted_kappa",
     "miss_rate",
     "false_alarm_rate",
     "kendall_tau_b",
 )
-PANEL_ORDER = ("agreement", "effectiveness", "miss_rate", "false_alarm_rate")
+PANEL_ORDER = (
+    "agreement",
+    "effectiveness",
+    "exact_agreement",
+    "within_one_agreement",
+    "miss_rate",
+    "false_alarm_rate",
+)
 REPEAT_ORDER = ("agreement", "fleiss_kappa")
 
 LABELS = {
@@ -98,7 +107,9 @@ class ReportContext:
         "safety_related, paper, trials, confidence, interval, bootstrap {resamples, seed}, weights "
         "(text), target_half_width, defect_category ({code, label} or None), categories "
         "[{index, code, label, value, description}], raters [{id, name, display}], signoff "
-        "{prepared_by, reviewed_by, approved_by}, reference_source (text), criteria_source."
+        "{prepared_by, reviewed_by, approved_by}, reference_source (text), criteria_source (the "
+        "source text of the criteria judged, else the study definition's), key_used (bool), "
+        "key_name (file name of the plan key or None)."
     )
     results: dict[str, Any] = _help(
         "The results JSON exactly as written to results.json (schema reportgen-results/1); records M "
@@ -200,6 +211,18 @@ class ReportContext:
     )
     font_css: str = _help(
         "The @font-face rules (shipped fonts as data: URIs); filled in by html.py."
+    )
+    criteria: dict[str, Any] | None = _help(
+        "The acceptance criteria as judged, or None when the study sets none: {set (name of a "
+        "shipped criteria set or None), title, source (text), cautions (list of texts), "
+        "marginal_is, zero_failure (text or None), left_out: [{measure, label, reason}] (rules of "
+        "a shipped set that do not apply to this study)}."
+    )
+    plan: dict[str, Any] | None = _help(
+        "The plan summary reportgen plan recorded for this study, or None when none was found: "
+        "{seed, seed_source, blinding, order, gap (texts), trial_dates: [{trial, date}], "
+        "revision (the study revision it was made for), items, run_sheets, key_used (bool: the "
+        "ratings were decoded with a plan key)}."
     )
 
 
@@ -332,6 +355,7 @@ def study_dict(study: Study, ratings: Ratings | None) -> dict[str, Any]:
         "reference_source": ref_source,
         "criteria_source": criteria_source,
         "key_used": study.key_path is not None,
+        "key_name": study.key_path.name if study.key_path is not None else None,
     }
 
 
@@ -916,6 +940,56 @@ def _ratings_table(
     }
 
 
+def criteria_view(results: Mapping[str, Any]) -> dict[str, Any] | None:
+    """The judged criteria for the scope section: source, cautions, zero-failure size, left out."""
+    crit = results.get("criteria")
+    if not isinstance(crit, Mapping):
+        return None
+    zf = crit.get("zero_failure")
+    left_out = [
+        {
+            "measure": str(x.get("measure")),
+            "label": _measure_label(str(x.get("measure"))),
+            "reason": str(x.get("reason") or "does not apply"),
+        }
+        for x in crit.get("left_out") or []
+        if isinstance(x, Mapping)
+    ]
+    return {
+        "set": crit.get("set"),
+        "title": crit.get("title"),
+        "source": crit.get("source"),
+        "cautions": [str(c) for c in crit.get("cautions") or [] if c],
+        "marginal_is": crit.get("marginal_is"),
+        "zero_failure": zf.get("text") if isinstance(zf, Mapping) else None,
+        "left_out": left_out,
+    }
+
+
+def plan_view(summary: Mapping[str, Any] | None, study: Study) -> dict[str, Any] | None:
+    """The plan summary (``plan.json``) as the design section shows it, or None."""
+    if not isinstance(summary, Mapping):
+        return None
+    design = summary.get("design") if isinstance(summary.get("design"), Mapping) else {}
+    made_for = summary.get("study") if isinstance(summary.get("study"), Mapping) else {}
+    return {
+        "seed": summary.get("seed"),
+        "seed_source": summary.get("seed_source"),
+        "blinding": summary.get("blinding"),
+        "order": summary.get("order"),
+        "gap": summary.get("gap"),
+        "trial_dates": [
+            {"trial": d.get("trial"), "date": d.get("date")}
+            for d in summary.get("trial_dates") or []
+            if isinstance(d, Mapping)
+        ],
+        "revision": made_for.get("revision"),
+        "items": design.get("items"),
+        "run_sheets": design.get("run_sheets"),
+        "key_used": study.key_path is not None,
+    }
+
+
 def build_context(
     study: Study,
     ratings: Ratings | None,
@@ -924,9 +998,17 @@ def build_context(
     generated_at: dt.datetime,
     draft: bool = False,
     charts: Mapping[str, Any] | None = None,
+    plan: Mapping[str, Any] | None = None,
 ) -> ReportContext:
-    """Assemble the context from the study, its ratings and the (judged) results."""
+    """Assemble the context from the study, its ratings and the (judged) results.
+
+    ``plan`` is the study's plan summary (:func:`reportgen.plan.find_plan_summary`), if any.
+    """
     raters = rater_dicts(study)
+    criteria = criteria_view(results)
+    study_view = study_dict(study, ratings)
+    if criteria is not None and criteria["source"]:
+        study_view["criteria_source"] = criteria["source"]
     verdict = verdict_view(results, raters)
     sections = []
     for anchor, title in SECTIONS:
@@ -997,7 +1079,7 @@ def build_context(
     outcome = verdict["outcome"] if verdict else "no verdict"
     head = f"{study.id} · revision {study.revision} · {outcome}" + (" · DRAFT" if draft else "")
     return ReportContext(
-        study=study_dict(study, ratings),
+        study=study_view,
         results=dict(results),
         verdict=verdict,
         deciding=deciding_view(results, verdict),
@@ -1035,6 +1117,8 @@ def build_context(
         running_head=head,
         templates=_templates(study),
         font_css="",
+        criteria=criteria,
+        plan=plan_view(plan, study),
     )
 
 

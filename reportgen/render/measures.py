@@ -43,6 +43,27 @@ MEASURES: dict[str, MeasureInfo] = {
             "proportion",
         ),
         MeasureInfo(
+            "exact_agreement",
+            "Exact agreement",
+            ("Exact = ratings equal to the reference / ratings of items with a reference",),
+            "On an ordered scale, the strict count: a rating one step off is as wrong here as one "
+            "three steps off; read it beside within one step.",
+            ("clopper1934", "wilson1927"),
+            "proportion",
+        ),
+        MeasureInfo(
+            "within_one_agreement",
+            "Within one step",
+            (
+                "W₁ = ratings at most one category from the reference / ratings of items with a "
+                "reference",
+            ),
+            "On an ordered scale, a rating next to the reference is a near miss rather than a "
+            "wrong call; this share shows how many ratings are at worst near misses.",
+            ("clopper1934", "wilson1927"),
+            "proportion",
+        ),
+        MeasureInfo(
             "miss_rate",
             "Miss rate",
             ("P(miss) = ratings of defect items called conforming / ratings of defect items",),

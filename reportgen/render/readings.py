@@ -103,6 +103,14 @@ def read_effectiveness(m: Any) -> str:
     return f"{fmt_pct(m)} of the ratings match the reference"
 
 
+def read_ordinal_share(m: Any, what: str) -> str:
+    """Reading of an ordered-scale share against the reference (exact, within one step)."""
+    u = _undefined(m)
+    if u:
+        return u
+    return f"{fmt_pct(m)} of the ratings {what}"
+
+
 def read_rank(m: Any) -> str:
     """Reading of Kendall's W or tau-b: agreement on the order of items."""
     u = _undefined(m)
@@ -121,6 +129,10 @@ def read_measure(m: Any, key: str) -> str:
         return read_proportion(m)
     if key == "effectiveness":
         return read_effectiveness(m)
+    if key == "exact_agreement":
+        return read_ordinal_share(m, "equal the reference")
+    if key == "within_one_agreement":
+        return read_ordinal_share(m, "are at most one step from the reference")
     if key == "miss_rate":
         return read_rate(m, "miss")
     if key == "false_alarm_rate":
@@ -136,5 +148,6 @@ READINGS = {
     "read_rate": read_rate,
     "read_effectiveness": read_effectiveness,
     "read_rank": read_rank,
+    "read_ordinal_share": read_ordinal_share,
     "read_measure": read_measure,
 }

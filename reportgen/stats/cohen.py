@@ -163,6 +163,13 @@ def cohen_kappa_features(
     return feats
 
 
+@functools.lru_cache(maxsize=16)
+def _margin_maps(k: int) -> tuple[np.ndarray, np.ndarray]:
+    """(k², k) 0/1 matrices summing flattened k × k tables to their row and column margins."""
+    eye, ones = np.eye(k), np.ones((k, 1))
+    return np.kron(eye, ones), np.kron(ones, eye)
+
+
 def _kappa_parts(
     tables: np.ndarray, w: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -172,11 +179,23 @@ def _kappa_parts(
     expected == 0 (no items, or chance agreement 1).
     """
     d = 1.0 - w
-    rows = tables.sum(axis=-1)
-    cols = tables.sum(axis=-2)
-    n = rows.sum(axis=-1)
-    observed = (tables * d).sum(axis=(-2, -1))  # n · (1 − p_o)
-    expected = ((rows @ d) * cols).sum(axis=-1)  # n² · (1 − p_e)
+    k = w.shape[0]
+    if tables.ndim > 2 and tables.size >= 64 * k * k:
+        # a batch (bootstrap replicates): small matrix products instead of reductions over
+        # short axes, which numpy does slowly; the counts' sums are exact either way
+        flat = tables.reshape(-1, k * k)
+        to_rows, to_cols = _margin_maps(k)
+        rows = (flat @ to_rows).reshape(tables.shape[:-1])
+        cols = (flat @ to_cols).reshape(tables.shape[:-1])
+        n = rows @ np.ones(k)
+        observed = (flat @ d.reshape(-1)).reshape(tables.shape[:-2])
+        expected = ((rows @ d) * cols) @ np.ones(k)
+    else:
+        rows = tables.sum(axis=-1)
+        cols = tables.sum(axis=-2)
+        n = rows.sum(axis=-1)
+        observed = (tables * d).sum(axis=(-2, -1))  # n · (1 − p_o)
+        expected = ((rows @ d) * cols).sum(axis=-1)  # n² · (1 − p_e)
     ratio = np.divide(
         n * observed, expected, out=np.full(np.shape(n), np.nan), where=expected > 0.0
     )

@@ -39,6 +39,7 @@ Wikipedia article "Fleiss' kappa" (kappa 0.210); statsmodels ``fleiss_kappa`` an
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -202,7 +203,10 @@ def fnl_null_variance(
 
 
 def fleiss_kappa(
-    counts: np.ndarray | CountPatterns, *, confidence_level: float = 0.95
+    counts: np.ndarray | CountPatterns,
+    *,
+    confidence_level: float = 0.95,
+    labels: Sequence[str] | None = None,
 ) -> FleissResult:
     """Fleiss' kappa overall and per category from an items × categories count table.
 
@@ -210,6 +214,9 @@ def fleiss_kappa(
     categories, unused ones included).  Items may have different numbers of ratings.  Returns a
     :class:`FleissResult`; ``overall.se`` and the interval are Gwet's non-null ones, ``z`` and
     ``p_value`` (two-sided) come from the Fleiss–Nee–Landis null variance (``extra["se_null"]``).
+    ``labels`` (one per category, e.g. the category codes) name the categories in warnings;
+    without them a category is named by its index.  A normal interval that overshoots the range
+    of kappa is cut to -1 .. 1, with a warning.
 
     Validated against: Fleiss (1971) Table 1 data and R irr's printed z (17.652); Wikipedia
     "Fleiss' kappa" example (0.210); statsmodels and irrCAC on random studies.
@@ -219,6 +226,12 @@ def fleiss_kappa(
     rows = pat.rows.astype(np.float64)
     w = pat.multiplicity.astype(np.float64)
     k = rows.shape[1]
+    if labels is None:
+        names = tuple(str(j) for j in range(k))
+    else:
+        names = tuple(str(x) for x in labels)
+        if len(names) != k:
+            raise ValueError(f"labels must name each of the {k} categories, got {len(names)}")
     m = rows.sum(axis=1)
     feats = fleiss_kappa_features(rows)
     sums = w @ feats
@@ -287,7 +300,7 @@ def fleiss_kappa(
         return FleissResult(
             overall=overall,
             by_category=_categories(kappa_j, pi, None, None, n_pairable, n_rated, zc, level,
-                                    level_notes, extra_common),
+                                    level_notes, extra_common, names),
         )
 
     if not everyone_pairable:  # items without ratings take no part in the variance
@@ -306,6 +319,7 @@ def fleiss_kappa(
     overall = _estimate(
         kappa, var, var0, zc, level, n_rated, all_alike, level_notes,
         {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi.tolist()},
+        "Fleiss' kappa",
     )
     # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table, whose
     # item agreement is 1 - 2 d_ij and chance agreement p_j^2 + q_j^2.
@@ -321,7 +335,7 @@ def fleiss_kappa(
         )
         var_j = (w @ (kstar_j - kappa_j) ** 2) / (n_rated * (n_rated - 1.0))
     by_cat = _categories(kappa_j, pi, var_j, var0_j, n_pairable, n_rated, zc, level,
-                         level_notes, extra_common)
+                         level_notes, extra_common, names)
     return FleissResult(overall=overall, by_category=by_cat)
 
 
@@ -336,28 +350,30 @@ def _categories(
     level: float,
     notes: tuple[str, ...],
     extra_common: dict[str, object],
+    names: tuple[str, ...],
 ) -> tuple[Estimate, ...]:
     out = []
     for j in range(kappa_j.shape[0]):
+        cat = names[j]
         value = float(kappa_j[j])
         pj = float(pi[j]) if n_rated else float("nan")
         extra = {**extra_common, "category": j, "proportion": _finite_or_none(pj)}
         if not np.isfinite(value) or var_j is None or var0_j is None:
             if n_pairable == 0:
-                why = f"Fleiss' kappa for category {j} is undefined: no item has two or more ratings."
+                why = f"Fleiss' kappa for category {cat} is undefined: no item has two or more ratings."
             elif pj <= 0.0:
-                why = f"Fleiss' kappa for category {j} is undefined: no rating is in this category."
+                why = f"Fleiss' kappa for category {cat} is undefined: no rating is in this category."
             elif pj >= 1.0:
-                why = f"Fleiss' kappa for category {j} is undefined: every rating is in this category."
+                why = f"Fleiss' kappa for category {cat} is undefined: every rating is in this category."
             else:
-                why = f"Fleiss' kappa for category {j} is undefined."
+                why = f"Fleiss' kappa for category {cat} is undefined."
             out.append(Estimate(
                 estimate=None, items=n_rated, confidence_level=level,
                 warnings=(*notes, why), extra=extra,
             ))
             continue
         out.append(_estimate(value, float(var_j[j]), float(var0_j[j]), zc, level, n_rated, None,
-                             notes, extra))
+                             notes, extra, f"Fleiss' kappa for category {cat}"))
     return tuple(out)
 
 
@@ -371,6 +387,7 @@ def _estimate(
     agreeing: int | None,
     notes: tuple[str, ...],
     extra: dict[str, object],
+    label: str,
 ) -> Estimate:
     se0 = math.sqrt(var0) if math.isfinite(var0) and var0 > 0 else math.nan
     se = math.sqrt(var) if math.isfinite(var) and var >= 0 else math.nan
@@ -378,6 +395,9 @@ def _estimate(
     warnings = notes
     if se == se:
         lo, hi = value - zc * se, value + zc * se
+        if lo < -1.0 or hi > 1.0:
+            warnings = (*notes, f"The analytic interval of {label} was cut to the range -1 to 1.")
+            lo, hi = max(lo, -1.0), min(hi, 1.0)
     else:
         warnings = (*notes, "No standard error: fewer than two rated items.")
     z = value / se0 if se0 > 0 else math.nan

@@ -235,6 +235,9 @@ def _finish(
     if np.isfinite(se):
         zc = _normal_critical(level)
         lo, hi = value - zc * se, value + zc * se
+        if lo < -1.0 or hi > 1.0:  # the coefficient lies in -1 .. 1; a normal interval may not
+            warnings.append(f"The analytic interval of {name} was cut to the range -1 to 1.")
+            lo, hi = max(lo, -1.0), min(hi, 1.0)
     else:
         warnings.append("No standard error: fewer than two rated items.")
     return Estimate(

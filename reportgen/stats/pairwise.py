@@ -125,6 +125,19 @@ def pair_tables(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
     return _pair_tables_ext(_extended(c, k), k).astype(np.int64)
 
 
+def _given_tables(tables: np.ndarray | None, r: int, k: int) -> np.ndarray | None:
+    """Validated float64 pair tables passed in by the caller, or None."""
+    if tables is None:
+        return None
+    t = np.asarray(tables, dtype=np.float64)
+    if t.shape != (r * (r - 1) // 2, k, k):
+        raise ValueError(
+            f"pair_tables must have shape ({r * (r - 1) // 2}, {k}, {k}) for {r} raters, "
+            f"got {t.shape}"
+        )
+    return t
+
+
 def _agreement_counts(by_category: np.ndarray) -> tuple[int, int]:
     """(items with ≥ 2 ratings, those on which every rating is the same) from (k, n) counts."""
     m = by_category.sum(axis=0)
@@ -141,12 +154,15 @@ def pairwise_cohen(
     *,
     weights: np.ndarray | str | None = None,
     confidence_level: float = 0.95,
+    pair_tables: np.ndarray | None = None,
 ) -> list[list[Estimate | None]]:
     """r×r matrix of Cohen's kappa between raters (rows/columns in ``codes`` column order).
 
     Entry [g][h] is the kappa of raters g and h over the items both rated (the table has rater g
     in rows); the diagonal is ``None``.  The matrix is symmetric: kappa and its FCE standard
-    errors do not change when the table is transposed (weights are symmetric).
+    errors do not change when the table is transposed (weights are symmetric).  ``pair_tables``
+    may pass the tables of :func:`pair_tables` for these ``codes`` when they are already built
+    (Light's kappa needs the same ones).
 
     Validated against: scikit-learn ``cohen_kappa_score`` per pair (test-only cross-check).
     """
@@ -155,7 +171,9 @@ def pairwise_cohen(
     c = _matrix_iv(codes, k)
     w = weights_iv(weights, k)
     r = c.shape[1]
-    tables = _pair_tables_ext(_extended(c, k), k)
+    tables = _given_tables(pair_tables, r, k)
+    if tables is None:
+        tables = _pair_tables_ext(_extended(c, k), k)
     g_idx, h_idx = _pair_index(r)
     out: list[list[Estimate | None]] = [[None] * r for _ in range(r)]
     estimates = _cohen_estimates(tables, w, level)
@@ -228,6 +246,7 @@ def light_kappa(
     weights: np.ndarray | str | None = None,
     confidence_level: float = 0.95,
     rater_labels: Sequence[str] | None = None,
+    pair_tables: np.ndarray | None = None,
 ) -> Estimate:
     """Light's (1971) kappa: the mean of Cohen's kappa over all pairs of raters.
 
@@ -235,6 +254,8 @@ def light_kappa(
     interval are ``None`` (use the item bootstrap with the features below).  ``extra`` holds
     ``pair_kappas`` (list in ``np.triu_indices`` order, ``None`` where undefined) and ``pairs``.
     ``items`` counts items with at least two ratings, ``agreeing`` those on which all agree.
+    ``pair_tables`` may pass the tables of :func:`pair_tables` for these ``codes`` when they are
+    already built (the pairwise matrix needs the same ones).
 
     Validated against: R irr documentation value 0.459 on the Fleiss (1971) diagnoses data;
     mean of scikit-learn pairwise kappas on random data (test-only).
@@ -243,7 +264,6 @@ def light_kappa(
     level = _confidence_level_iv(confidence_level)
     c = _matrix_iv(codes, k)
     r = c.shape[1]
-    ext = _extended(c, k)
     items, agreeing = _agreement_counts(_counts(c, k)[0])
     if r < 2:
         return Estimate(
@@ -257,7 +277,10 @@ def light_kappa(
     n_pairs = r * (r - 1) // 2
     # The point estimate goes through the bootstrap's formula (_light_parts); its sums are the
     # column sums of light_kappa_features (the pair tables), one bincount per pair.
-    sums = _pair_tables_ext(ext, k).reshape(-1)
+    tables = _given_tables(pair_tables, r, k)
+    if tables is None:
+        tables = _pair_tables_ext(_extended(c, k), k)
+    sums = tables.reshape(-1)
     pair_k, mean = _light_parts(sums, k, n_pairs, w)
     value = float(mean)
     g_idx, h_idx = _pair_index(r)
@@ -371,12 +394,25 @@ def _conger_parts(
     n2 = s[..., 0]
     # Conger (1980) / Gwet (2014): p_e = Σ_kl w_kl Σ_{g≠h} p_gk p_hl / (r(r − 1)).
     classif = s[..., 2:].reshape(s.shape[:-1] + (r, k))
-    n_g = classif.sum(axis=-1)
-    r_eff = (n_g > 0).sum(axis=-1).astype(np.float64)  # raters with at least one rating
-    share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]  # p_gk (0 for idle raters)
-    total = share.sum(axis=-2)  # Σ_g p_gk
-    # Σ_kl d_kl Σ_{g≠h} p_gk p_hl = Σ_kl d_kl [(Σ_g p_gk)(Σ_h p_hl) − Σ_g p_gk p_gl]
-    cross = ((total @ d) * total).sum(axis=-1) - ((share @ d) * share).sum(axis=(-2, -1))
+    if s.ndim > 1 and s.shape[0] >= 64:
+        # a batch (bootstrap replicates): the same sums as below, written as 2-D matrix products
+        # (numpy reduces over short trailing axes and multiplies stacks of small matrices slowly)
+        lead = s.shape[:-1]
+        flat = classif.reshape(-1, k)  # (batch·r, k)
+        n_g = (flat @ np.ones(k)).reshape(lead + (r,))
+        r_eff = (n_g > 0) @ np.ones(r)
+        share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]
+        total = share.sum(axis=-2)
+        flat_share = share.reshape(-1, k)
+        own = (((flat_share @ d) * flat_share) @ np.ones(k)).reshape(lead + (r,)) @ np.ones(r)
+        cross = ((total @ d) * total) @ np.ones(k) - own
+    else:
+        n_g = classif.sum(axis=-1)
+        r_eff = (n_g > 0).sum(axis=-1).astype(np.float64)  # raters with at least one rating
+        share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]  # p_gk (0 for idle raters)
+        total = share.sum(axis=-2)  # Σ_g p_gk
+        # Σ_kl d_kl Σ_{g≠h} p_gk p_hl = Σ_kl d_kl [(Σ_g p_gk)(Σ_h p_hl) − Σ_g p_gk p_gl]
+        cross = ((total @ d) * total).sum(axis=-1) - ((share @ d) * share).sum(axis=(-2, -1))
     pairs = r_eff * (r_eff - 1.0)
     dis_exp = np.divide(cross, pairs, out=np.zeros(np.shape(n2)), where=pairs > 0)  # 1 − p_e
     dis_obs = np.divide(s[..., 1], n2, out=np.full(np.shape(n2), np.nan), where=n2 > 0)  # 1 − p_a

@@ -1,7 +1,8 @@
 """Fixtures of the render tests: real builds of the demo studies and of small invented studies.
 
-Builds are costly (charts, fonts, WeasyPrint), so each demo study is built once per session
-into a temporary folder with a fixed ``generated_at``; tests read the files.
+Builds are costly (charts, fonts, WeasyPrint), so each demo study is built once per session,
+by the one ``reportgen demo`` run that tests/conftest.py shares with tests/test_examples.py
+(fixed build time ``GENERATED_AT``); tests read the files and must not write into them.
 """
 
 from __future__ import annotations
@@ -65,22 +66,34 @@ def build(study_yaml: Path, out: Path, **kw: Any) -> Built:
     return Built(folder, study)
 
 
+def from_demo(run: Any, folder: str) -> Built:
+    """The report the shared demo run built for ``studies/<folder>``."""
+    from conftest import DEMO_GENERATED_AT
+
+    from reportgen.study import load_study
+
+    assert DEMO_GENERATED_AT == GENERATED_AT
+    assert run.exit_code == 0, (run.output, run.result.exception)
+    study = load_study(STUDIES / folder / "study.yaml")
+    return Built(run.folder(study.id, study.revision), study)
+
+
 @pytest.fixture(scope="session")
-def built_binary(tmp_path_factory: pytest.TempPathFactory) -> Built:
+def built_binary(demo_run_once: Any) -> Built:
     """The seal-check demo (binary, reference, criteria, certification, safety-related)."""
-    return build(STUDIES / "seal-check" / "study.yaml", tmp_path_factory.mktemp("binary"))
+    return from_demo(demo_run_once, "seal-check")
 
 
 @pytest.fixture(scope="session")
-def built_ordinal(tmp_path_factory: pytest.TempPathFactory) -> Built:
+def built_ordinal(demo_run_once: Any) -> Built:
     """The finish-grading demo (ordinal, reference file, criteria)."""
-    return build(STUDIES / "finish-grading" / "study.yaml", tmp_path_factory.mktemp("ordinal"))
+    return from_demo(demo_run_once, "finish-grading")
 
 
 @pytest.fixture(scope="session")
-def built_nominal(tmp_path_factory: pytest.TempPathFactory) -> Built:
+def built_nominal(demo_run_once: Any) -> Built:
     """The defect-triage demo (nominal, one trial, no reference file)."""
-    return build(STUDIES / "defect-triage" / "study.yaml", tmp_path_factory.mktemp("nominal"))
+    return from_demo(demo_run_once, "defect-triage")
 
 
 def pdftotext_pages(pdf: Path) -> list[str]:
@@ -118,3 +131,55 @@ def small_study(folder: Path, **overrides: Any) -> Path:
     }
     base.update(overrides)
     return write_study(folder, **base)
+
+
+def keyed_study(folder: Path, *, seed: int = 2718) -> Path:
+    """A small invented study run from a reportgen plan: the cable-lug check of tests/_built.py,
+    planned with ``seed``, its plan folder copied into the study folder as ``plan/``, the
+    data-entry file filled with the known calls, and the study pointed at it and at the key
+    (``ratings: plan/ratings-entry.csv``, ``key: plan/key/key.csv``).  Returns study.yaml."""
+    import csv
+    import io
+
+    from _built import CALLS, study_files
+
+    from reportgen.plan import load_items, make_plan, plan_settings, write_plan
+    from reportgen.study import load_study
+
+    study_file = study_files(folder / "study")
+    study_dir = study_file.parent
+    (study_dir / "items.csv").write_text(
+        "item,reference\n"
+        + "".join(
+            f"LUG-{i:02d},{r}\n"
+            for i, r in enumerate(CALLS["L1"][0], start=1)  # L1 = reference
+        ),
+        encoding="utf-8",
+    )
+    study = load_study(study_file)
+    items = load_items(study_dir / "items.csv", study)
+    settings = plan_settings(study, seed=seed, today=dt.date(2026, 11, 2))
+    plan_dir = write_plan(
+        make_plan(study, items, settings), study, output_dir=folder / "plan-out", pdf=False
+    )
+    shutil.copytree(plan_dir, study_dir / "plan")
+    key_rows = list(csv.DictReader(io.StringIO((study_dir / "plan/key/key.csv").read_text())))
+    key = {k["label"]: (k["item"], int(k["trial"])) for k in key_rows}
+    entry = list(csv.DictReader(io.StringIO((study_dir / "plan/ratings-entry.csv").read_text())))
+    lines = ["item,rater,trial,rating"]
+    for row in entry:
+        item, trial = key[row["item"]]
+        assert int(row["trial"]) == trial
+        call = CALLS[row["rater"]][trial - 1][int(item.split("-")[1]) - 1]
+        lines.append(f"{row['item']},{row['rater']},{row['trial']},{call}")
+    (study_dir / "plan/ratings-entry.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    text = study_file.read_text(encoding="utf-8")
+    assert "ratings: ratings.csv\n" in text
+    study_file.write_text(
+        text.replace(
+            "ratings: ratings.csv\n", "ratings: plan/ratings-entry.csv\nkey: plan/key/key.csv\n"
+        ),
+        encoding="utf-8",
+    )
+    (study_dir / "ratings.csv").unlink()  # only the coded entry file remains
+    return study_file

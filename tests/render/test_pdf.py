@@ -198,7 +198,10 @@ def test_fetcher_allows_package_fonts() -> None:
 def test_existing_revision_refused_then_replaced_as_draft(tmp_path: Path, run_cli) -> None:  # type: ignore[no-untyped-def]
     s = small_study(tmp_path / "s")
     out = tmp_path / "out"
-    code, _o, err = run_cli("build", s, "-o", out, "--generated-at", GENERATED_AT, "--quiet")
+    # the first build needs no PDF (test speed): the folder exists either way
+    code, _o, err = run_cli(
+        "build", s, "-o", out, "--generated-at", GENERATED_AT, "--quiet", "--no-pdf"
+    )
     assert code == 0, err
     folder = out / "TEST-01" / "rev1"
     before = {p.name: p.read_bytes() for p in folder.iterdir()}
@@ -277,3 +280,78 @@ def test_stale_temporary_folders_cleaned(tmp_path: Path) -> None:
     os.utime(stale, (old, old))
     write_folder(tmp_path / "S" / "rev2", {"a": b"1"})
     assert not stale.exists() and fresh.exists()
+
+
+# ---- build --archive -----------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        (
+            ["--archive", "--replace"],
+            "--archive cannot be used with --replace: a draft is not archived",
+        ),
+        (["--archive", "--no-pdf"], "--archive cannot be used with --no-pdf"),
+        (["--archive-dir", "somewhere"], "--archive-dir is used only together with --archive"),
+    ],
+)
+def test_archive_refusals_are_usage_errors(
+    tmp_path: Path, run_cli, extra: list[str], message: str
+) -> None:  # type: ignore[no-untyped-def]
+    s = small_study(tmp_path / "s")
+    code, _o, err = run_cli("build", s, "-o", tmp_path / "out", *extra, "--quiet")
+    assert code == 2, err
+    assert message in err
+    assert not (tmp_path / "out").exists() and not (tmp_path / "somewhere").exists()
+
+
+@pytest.mark.slow
+def test_build_archive(tmp_path: Path, run_cli, monkeypatch: pytest.MonkeyPatch) -> None:  # type: ignore[no-untyped-def]
+    from reportgen.archive import is_read_only, list_entries
+
+    monkeypatch.delenv("REPORTGEN_ARCHIVE", raising=False)
+    s = small_study(tmp_path / "s")
+    out = tmp_path / "out"
+    code, stdout, err = run_cli("build", s, "-o", out, "--generated-at", GENERATED_AT, "--archive")
+    assert code == 0, err
+    archive = tmp_path / "archive"  # the default: archive/ beside output/
+    assert f"  archived in {archive / 'TEST-01' / 'rev1'}" in stdout.splitlines()
+    (entry,) = list_entries(archive)
+    assert (entry.study_id, entry.revision, entry.folder) == ("TEST-01", 1, "TEST-01/rev1")
+    built = out / "TEST-01" / "rev1"
+    for p in built.iterdir():
+        copy = archive / "TEST-01" / "rev1" / p.name
+        assert copy.read_bytes() == p.read_bytes() and is_read_only(copy), p.name
+    assert entry.files == {
+        p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in built.iterdir()
+    }
+
+
+def test_build_archive_failure_says_the_report_was_built(
+    tmp_path: Path, run_cli, monkeypatch: pytest.MonkeyPatch
+) -> None:  # type: ignore[no-untyped-def]
+    import reportgen.archive as archive_mod
+    import reportgen.render.build as build_mod
+
+    folder = tmp_path / "out" / "TEST-01" / "rev1"
+
+    def fake_build(*a, **k):  # type: ignore[no-untyped-def]
+        folder.mkdir(parents=True)
+        return folder
+
+    def refuse(*a, **k):  # type: ignore[no-untyped-def]
+        raise ExistsError("TEST-01 rev1 is already archived")
+
+    monkeypatch.setattr(build_mod, "build_report", fake_build)
+    monkeypatch.setattr(archive_mod, "archive_revision", refuse)
+    s = small_study(tmp_path / "s")
+    code, _o, err = run_cli(
+        "build", s, "-o", tmp_path / "out", "--archive", "--archive-dir", tmp_path / "a", "--quiet"
+    )
+    assert code == 5, err
+    assert (
+        f"TEST-01 revision 1: the report was built in {folder}, but it could not be archived:"
+        in err
+    )
+    assert "already archived" in err

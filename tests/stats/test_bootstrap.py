@@ -264,3 +264,161 @@ def test_bca_falls_back_to_percentile_when_every_resample_is_on_one_side() -> No
     assert r.method == "bootstrap percentile"
     assert any("BCa correction not possible" in w for w in r.warnings)
     assert r.ci_low is not None and r.ci_low >= 0.0
+
+
+# --------------------------------------------------------------------------- samplers, by path
+
+
+def _chi2_binomial_ok(w: np.ndarray, col: int, n: int, p: float) -> bool:
+    from scipy import stats
+
+    reps = w.shape[0]
+    x = w[:, col].astype(int)
+    pmf = stats.binom.pmf(np.arange(x.max() + 1), n, p)
+    expected = reps * pmf
+    keep = expected >= 5
+    observed = np.bincount(x, minlength=pmf.size)
+    obs = np.append(observed[keep], observed[~keep].sum())
+    exp = np.append(expected[keep], reps - expected[keep].sum())
+    if exp[-1] < 5:
+        obs, exp = np.append(obs[:-2], obs[-2:].sum()), np.append(exp[:-2], exp[-2:].sum())
+    chi2 = float(((obs - exp) ** 2 / exp).sum())
+    return bool(stats.chi2.sf(chi2, obs.size - 1) > 1e-4)
+
+
+def test_poissonised_sampler_on_a_large_study_is_exactly_multinomial() -> None:
+    """More than 2,048 items: the Poissonised sampler (stacked lookup tables for multiplicities
+    up to 64, Generator.poisson above).  Marginals are Binomial(n, m_p / n) (chi-square) and the
+    covariance of two patterns is -n p q (multinomial law)."""
+    mult = np.array([1] * 900 + [2] * 300 + [7] * 40 + [64] * 10 + [65] * 4 + [400, 1500])
+    n = int(mult.sum())
+    assert n > 2048
+    reps = 30000
+    w = draw_pattern_counts(np.random.default_rng(5), mult, reps)
+    assert np.all(w.sum(1) == n)
+    for col in (0, 900, 1200, 1240, 1250, mult.size - 1):
+        assert _chi2_binomial_ok(w, col, n, mult[col] / n), col
+    # covariance of the two largest patterns: -n p q, within 4 standard errors
+    p, q = mult[-2] / n, mult[-1] / n
+    cov = np.cov(w[:, -2], w[:, -1])[0, 1]
+    sd_a, sd_b = np.sqrt(n * p * (1 - p)), np.sqrt(n * q * (1 - q))
+    assert abs(cov - (-n * p * q)) < 4 * sd_a * sd_b / np.sqrt(reps) * 1.5
+
+
+def test_item_draw_sampler_on_a_small_study_is_exactly_multinomial() -> None:
+    """At most 2,048 items: the items themselves are drawn (n uniform integers per replicate)."""
+    mult = np.array([1, 1, 3, 5, 40])
+    n = int(mult.sum())
+    w = draw_pattern_counts(np.random.default_rng(8), mult, 40000)
+    assert np.all(w.sum(1) == n)
+    for col in range(mult.size):
+        assert _chi2_binomial_ok(w, col, n, mult[col] / n), col
+    # every pattern a single item: the identity fast path, same law
+    w1 = draw_pattern_counts(np.random.default_rng(8), np.ones(30, dtype=np.int64), 40000)
+    assert np.all(w1.sum(1) == 30)
+    assert _chi2_binomial_ok(w1, 7, 30, 1 / 30)
+
+
+def test_sorted_quantile_is_numpys_linear_quantile() -> None:
+    from reportgen.stats.bootstrap import _sorted_quantile
+
+    rng = np.random.default_rng(2)
+    for size in (2, 3, 17, 2000):
+        x = np.sort(rng.normal(size=size))
+        for p in (0.0, 0.025, 0.3, 0.5, 0.975, 0.999, 1.0):
+            assert _sorted_quantile(x, p) == pytest.approx(float(np.quantile(x, p)), abs=1e-15)
+
+
+# --------------------------------------------------------------------------- feature groups
+
+
+def test_lone_group_is_the_plain_bootstrap() -> None:
+    from reportgen.stats.bootstrap import FeatureGroup, bootstrap_groups
+
+    c = _study(11, n=300)
+    f = fleiss_kappa_features(c)
+    plain = bootstrap(f, fleiss_kappa_from_sums, resamples=500, seed=4)
+    grouped = bootstrap_groups(
+        {"g": FeatureGroup.of_items(f)}, {"k": ("g", fleiss_kappa_from_sums)},
+        resamples=500, seed=4,
+    )["k"]
+    assert grouped == plain
+
+
+def test_groups_share_the_same_item_draws() -> None:
+    """One statistic computed from two differently compressed groups (count patterns vs one row
+    per item) gets the same replicate values: every group sees the same resampled items."""
+    from reportgen.stats.bootstrap import FeatureGroup, bootstrap_groups
+    from reportgen.stats.tables import count_patterns
+
+    rng = np.random.default_rng(12)
+    codes = rng.integers(-1, 3, size=(700, 4))
+    pat = count_patterns(codes, 3)
+    assert pat.n_patterns < 700  # compressed
+    per_pattern = FeatureGroup(fleiss_kappa_features(pat.rows), pat.multiplicity, pat.inverse)
+    per_item_f = fleiss_kappa_features(count_table(codes, 3))
+    per_item = FeatureGroup(per_item_f, np.ones(700, dtype=np.int64), np.arange(700))
+    # a third group whose rows identify the items completely (like rater-identified features)
+    ident = FeatureGroup(np.eye(700)[:, :3] + 0.0, np.ones(700, dtype=np.int64), np.arange(700))
+    out = bootstrap_groups(
+        {"pat": per_pattern, "items": per_item, "ident": ident},
+        {"a": ("pat", fleiss_kappa_from_sums), "b": ("items", fleiss_kappa_from_sums),
+         "c": ("ident", lambda s: s[..., 0])},
+        resamples=400, seed=3,
+    )
+    a, b = out["a"], out["b"]
+    assert a.estimate == pytest.approx(b.estimate, abs=1e-13)
+    assert a.ci_low == pytest.approx(b.ci_low, abs=1e-12)
+    assert a.ci_high == pytest.approx(b.ci_high, abs=1e-12)
+    assert a.se == pytest.approx(b.se, abs=1e-12)
+    # and the same law as bootstrapping the group alone (another draw): SE within 15 %
+    alone = bootstrap(per_item_f, fleiss_kappa_from_sums, resamples=400, seed=3)
+    assert a.se == pytest.approx(alone.se, rel=0.15)
+
+
+def test_groups_input_validation() -> None:
+    from reportgen.stats.bootstrap import FeatureGroup, bootstrap_groups
+
+    f = np.ones((4, 2))
+    g1 = FeatureGroup(f, np.ones(4, dtype=np.int64), np.arange(4))
+    g2 = FeatureGroup(f[:3], np.array([1, 1, 1]), np.arange(3))
+    with pytest.raises(ValueError, match="unknown feature group"):
+        bootstrap_groups({"a": g1}, {"x": ("b", lambda s: s[..., 0])})
+    with pytest.raises(ValueError, match="same items"):
+        bootstrap_groups({"a": g1, "b": g2},
+                         {"x": ("a", lambda s: s[..., 0]), "y": ("b", lambda s: s[..., 0])})
+    no_map = FeatureGroup(f, np.ones(4, dtype=np.int64))
+    with pytest.raises(ValueError, match="inverse"):
+        bootstrap_groups({"a": g1, "b": no_map},
+                         {"x": ("a", lambda s: s[..., 0]), "y": ("b", lambda s: s[..., 0])})
+
+
+def test_bootstrap_many_compresses_a_shared_matrix_once() -> None:
+    """The per-category kappas pass one matrix under several keys: one group, one compression;
+    a second, distinct matrix whose rows never repeat does not spoil it."""
+    from reportgen.stats import bootstrap as bmod
+
+    c = _study(5, n=2000)
+    f = fleiss_kappa_features(c)
+    seen: list[int] = []
+    real = bmod.FeatureGroup.of_items
+
+    def spy(features: np.ndarray) -> bmod.FeatureGroup:
+        grp = real(features)
+        seen.append(grp.features.shape[0])
+        return grp
+
+    bmod.FeatureGroup.of_items = staticmethod(spy)  # type: ignore[assignment, method-assign]
+    try:
+        noisy = np.random.default_rng(0).random((2000, 2))
+        out = bootstrap_many(
+            {"a": f, "b": f, "c": f, "n": noisy},
+            {"a": fleiss_kappa_from_sums, "b": fleiss_kappa_from_sums,
+             "c": fleiss_kappa_from_sums, "n": lambda s: s[..., 0] / s[..., 1]},
+            resamples=200, seed=1,
+        )
+    finally:
+        bmod.FeatureGroup.of_items = real  # type: ignore[method-assign]
+    assert len(seen) == 2  # one compression per distinct matrix
+    assert min(seen) < 2000 and max(seen) == 2000
+    assert out["a"] == out["b"] == out["c"]

@@ -484,3 +484,16 @@ def test_null_p_value_is_two_sided_normal() -> None:
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         cohen_kappa([[1, 0], [0, 0]])  # no numpy warnings on degenerate input
+
+
+def test_batched_kappa_matches_one_table_at_a_time() -> None:
+    """The bootstrap's batched formula (matrix products over many replicate tables) gives the
+    same kappa as each table on its own, unweighted and weighted (to 1e-12)."""
+    rng = np.random.default_rng(10)
+    sums = rng.integers(0, 12, size=(500, 16)).astype(float)
+    sums[0] = 0.0  # an empty table: NaN in both
+    for weights in (None, "linear", "quadratic"):
+        batch = cohen_kappa_from_sums(sums, 4, weights=weights)
+        one = np.array([cohen_kappa_from_sums(s, 4, weights=weights) for s in sums])
+        np.testing.assert_allclose(batch, one, rtol=0, atol=1e-12)
+        assert np.isnan(batch[0]) and np.isnan(one[0])

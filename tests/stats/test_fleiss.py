@@ -265,3 +265,37 @@ def test_perfect_agreement_is_one() -> None:
 def test_bad_confidence_level() -> None:
     with pytest.raises(ValueError, match="confidence_level"):
         fleiss_kappa(F2, confidence_level=95)
+
+
+# --------------------------------------------------------------------------- labels, range
+
+
+def test_category_warnings_name_the_category_code() -> None:
+    # category "C" (index 2) is never used: its kappa is undefined, and the warning names "C"
+    counts = np.array([[3, 0, 0], [0, 3, 0], [2, 1, 0], [1, 2, 0]])
+    named = fleiss_kappa(counts, labels=("A", "B", "C"))
+    assert named.by_category[2].estimate is None
+    assert any("category C" in w for w in named.by_category[2].warnings)
+    assert not any("category 2" in w for w in named.by_category[2].warnings)
+    plain = fleiss_kappa(counts)  # without labels: the index, as before
+    assert any("category 2" in w for w in plain.by_category[2].warnings)
+    # the numbers do not depend on the labels
+    assert named.overall.estimate == plain.overall.estimate
+    with pytest.raises(ValueError, match="labels"):
+        fleiss_kappa(counts, labels=("A", "B"))
+
+
+def test_analytic_interval_is_cut_to_the_range_of_kappa() -> None:
+    """High agreement on few items: kappa + 1.96 SE passes 1.  Gwet's (2014) non-null variance
+    (the method) gives an interval reaching past 1, which is cut to 1 with a warning; the
+    estimate, SE and the null test are unchanged (hand check of the uncut bound below)."""
+    counts = np.array([[3, 0], [3, 0], [0, 3], [0, 3], [2, 1], [3, 0]])
+    res = fleiss_kappa(counts)
+    ov = res.overall
+    assert ov.estimate == pytest.approx(0.7662337662337664, abs=1e-12)
+    assert ov.estimate + 1.959963984540054 * ov.se > 1.0  # the uncut normal interval
+    assert ov.ci_high == 1.0
+    assert ov.ci_low == pytest.approx(ov.estimate - 1.959963984540054 * ov.se, abs=1e-12)
+    assert any("cut to the range -1 to 1" in w for w in ov.warnings)
+    for est in res.by_category:
+        assert -1.0 <= est.ci_low <= est.ci_high <= 1.0

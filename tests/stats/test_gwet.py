@@ -152,3 +152,14 @@ def test_all_ratings_in_one_category_is_not_reported_as_one() -> None:
         assert any("every rating is in one category" in w for w in est.warnings)
         assert est.extra["value_if_reported"] == pytest.approx(1.0, abs=1e-15)
     assert float(gwet_ac_from_sums(gwet_ac_features(c).sum(0))) == pytest.approx(1.0, abs=1e-15)
+
+
+def test_analytic_intervals_are_cut_to_minus_one_to_one() -> None:
+    """AC1 and Brennan-Prediger lie in -1 .. 1; a normal interval around a high value on six
+    items overshoots and is cut, with a warning (estimate and SE unchanged)."""
+    counts = np.array([[3, 0], [3, 0], [0, 3], [0, 3], [2, 1], [3, 0]])
+    for est in (gwet_ac(counts), brennan_prediger(counts)):
+        assert est.estimate + 1.959963984540054 * est.se > 1.0
+        assert est.ci_high == 1.0
+        assert est.ci_low == pytest.approx(est.estimate - 1.959963984540054 * est.se, abs=1e-12)
+        assert any("cut to the range -1 to 1" in w for w in est.warnings)

@@ -372,3 +372,58 @@ def test_both_counting_paths_give_exact_counts(n: int, r: int) -> None:
     onehot = codes[:, :, None] == np.arange(4)
     assert np.array_equal(items, onehot.sum(axis=1).T)
     assert np.array_equal(raters, onehot.sum(axis=0))
+
+
+# --------------------------------------------------------------------------- degenerate units
+
+
+@pytest.mark.parametrize(
+    "codes",
+    [
+        np.array([[0, -1, -1], [-1, 1, -1], [-1, -1, 0], [1, -1, -1]]),
+        np.array([[0, -1, -1], [-1, 1, -1], [-1, -1, 0], [1, -1, -1]], dtype=np.int8),
+        # large enough for the column-wise counting path, one rating per unit
+        np.where(np.eye(3, dtype=bool)[np.arange(30000) % 3], np.arange(30000)[:, None] % 2, -1),
+        np.full((5, 3), -1),
+        np.zeros((0, 3), dtype=np.int64),
+    ],
+    ids=["small", "int8", "large", "all-missing", "no-units"],
+)
+def test_conger_without_any_unit_with_two_ratings(codes: np.ndarray) -> None:
+    """No unit with two ratings: Conger's kappa is undefined, said in words, never an error."""
+    est = conger_kappa(codes, 2)
+    assert est.estimate is None
+    assert est.items == 0
+    assert est.warnings and all(w.strip() for w in est.warnings)
+    assert any("undefined" in w for w in est.warnings)
+
+
+def test_pair_tables_can_be_passed_in_once() -> None:
+    rng = np.random.default_rng(4)
+    codes = rng.integers(-1, 3, size=(80, 4))
+    tables = pair_tables(codes, 3)
+    a = light_kappa(codes, 3)
+    b = light_kappa(codes, 3, pair_tables=tables)
+    assert a == b
+    pa = pairwise_cohen(codes, 3)
+    pb = pairwise_cohen(codes, 3, pair_tables=tables)
+    assert pa == pb
+    with pytest.raises(ValueError, match="pair_tables"):
+        light_kappa(codes, 3, pair_tables=tables[:2])
+
+
+def test_batched_conger_and_light_match_one_at_a_time() -> None:
+    """The bootstrap's batched formulas (matrix products) give the same values as the
+    unbatched ones, replicate by replicate (to 1e-12)."""
+    rng = np.random.default_rng(6)
+    codes = rng.integers(-1, 4, size=(40, 3))
+    fc = conger_kappa_features(codes, 4, weights="linear")
+    fl = light_kappa_features(codes, 4)
+    draws = rng.multinomial(40, np.full(40, 1 / 40), size=300).astype(float)
+    sc, sl = draws @ fc, draws @ fl
+    batch_c = conger_kappa_from_sums(sc, 4, weights="linear")
+    one_c = np.array([conger_kappa_from_sums(s, 4, weights="linear") for s in sc])
+    np.testing.assert_allclose(batch_c, one_c, rtol=0, atol=1e-12)
+    batch_l = light_kappa_from_sums(sl, 4, weights="quadratic")
+    one_l = np.array([light_kappa_from_sums(s, 4, weights="quadratic") for s in sl])
+    np.testing.assert_allclose(batch_l, one_l, rtol=0, atol=1e-12)
