@@ -170,11 +170,22 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--reference", action="store_true",
                         help="also give every item a reference category (reference.csv), so "
                              "that the accuracy figures are computed too")
+    parser.add_argument("--make", metavar="FOLDER", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
+    if args.make:
+        make_campaign(Path(args.make), seed=args.seed, reference=args.reference)
+        return 0
     folder = Path(tempfile.mkdtemp(prefix="reportgen-e2e-"))
     try:
         t0 = time.perf_counter()
-        study = make_campaign(folder, seed=args.seed, reference=args.reference)
+        # made in a child process, so that this one stays small: a child's peak RSS counts
+        # the memory of the process it was forked from
+        subprocess.run(
+            [PY, __file__, "--make", str(folder), "--seed", str(args.seed)]
+            + (["--reference"] if args.reference else []),
+            check=True,
+        )
+        study = folder / "study.yaml"
         n_lines = sum(1 for _ in open(folder / "ratings.csv", encoding="utf-8")) - 1
         print(f"data: {folder} ({n_lines:,} ratings, "
               f"{(folder / 'ratings.csv').stat().st_size / 1e6:.1f} MB, "

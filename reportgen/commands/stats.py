@@ -333,6 +333,11 @@ def _show_progress(quiet: bool) -> bool:
 @click.option("--quiet", "-q", is_flag=True, help="No progress messages.")
 def command(study_path: str, as_json: bool, quiet: bool) -> None:
     """Compute every agreement figure of a study and print a summary (or the JSON results)."""
+    import gc
+
+    # A short-lived process holding one record per item (100,000 in a labelling campaign): the
+    # cyclic garbage collector would only re-walk them while the verdict and the JSON are made.
+    gc.disable()
     from ..analysis import analyse
     from ..ratings import load_ratings
     from ..study import load_study

@@ -344,3 +344,18 @@ def test_demo_pdf_must_show(which: str, request: pytest.FixtureRequest) -> None:
     assert missing == []
     verdict = built.results["verdict"]["outcome"]
     assert f"{study.id} · revision {study.revision} · {verdict}" in flat
+
+
+def test_ordinal_shares_against_the_reference_print_as_percentages(built_ordinal: Built) -> None:
+    """accuracy.<rater>.exact_agreement / within_one_agreement (and the panel's): shown with
+    their intervals in the accuracy tables, as percentages, with a reading."""
+    text = _text(built_ordinal.html)
+    blocks = [*built_ordinal.results["accuracy"].values(), built_ordinal.results["panel_accuracy"]]
+    for acc in blocks:
+        for key, name, what in (
+            ("exact_agreement", "Exact agreement", "equal the reference"),
+            ("within_one_agreement", "Within one step", "are at most one step from the reference"),
+        ):
+            m = acc[key]
+            row = f"{name} {fmt_pct(m)} {fmt_ci(m, 1, pct=True)} {m['items']} {m['agreeing']} — "
+            assert row + f"{fmt_pct(m)} of the ratings {what}" in text, key
