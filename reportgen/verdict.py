@@ -140,6 +140,8 @@ MEASURES: tuple[MeasureInfo, ...] = (
     _m("accuracy", "weighted_kappa", "weighted kappa against the reference", "coefficient", "higher", "reference", "ordinal"),
     _m("accuracy", "miss_rate", "miss rate", "proportion", "lower", "reference", "defect"),
     _m("accuracy", "false_alarm_rate", "false alarm rate", "proportion", "lower", "reference", "defect"),
+    _m("accuracy", "exact_agreement", "exact agreement with the reference", "proportion", "higher", "reference", "ordinal"),
+    _m("accuracy", "within_one_agreement", "agreement within one step of the reference", "proportion", "higher", "reference", "ordinal"),
     _m("accuracy", "kendall_tau_b", "Kendall's tau-b against the reference", "coefficient", "higher", "reference", "ordinal"),
     _m("reproducibility", "agreement", "agreement rate among raters", "proportion", "higher", "raters"),
     _m("reproducibility", "fleiss_kappa", "Fleiss' kappa among raters", "coefficient", "higher", "raters"),
@@ -154,6 +156,8 @@ MEASURES: tuple[MeasureInfo, ...] = (
     _m("reproducibility", "kendall_w", "Kendall's W among raters", "coefficient", "higher", "raters", "ordinal"),
     _m("panel_accuracy", "agreement", "panel agreement rate with the reference", "proportion", "higher", "reference"),
     _m("panel_accuracy", "effectiveness", "panel effectiveness", "proportion", "higher", "reference"),
+    _m("panel_accuracy", "exact_agreement", "panel exact agreement with the reference", "proportion", "higher", "reference", "ordinal"),
+    _m("panel_accuracy", "within_one_agreement", "panel agreement within one step of the reference", "proportion", "higher", "reference", "ordinal"),
     _m("panel_accuracy", "miss_rate", "panel miss rate", "proportion", "lower", "reference", "defect"),
     _m("panel_accuracy", "false_alarm_rate", "panel false alarm rate", "proportion", "lower", "reference", "defect"),
 )

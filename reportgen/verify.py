@@ -36,7 +36,7 @@ from .errors import InputError
 
 TOLERANCE = 1e-12
 #: measure keys the report prints as percentages (the report's own convention, templates/_macros.html)
-PERCENT_KEYS = frozenset({"agreement", "effectiveness", "miss_rate", "false_alarm_rate", "exact", "within_one_step"})
+PERCENT_KEYS = frozenset({"agreement", "effectiveness", "miss_rate", "false_alarm_rate", "exact", "within_one_step", "exact_agreement", "within_one_agreement"})
 #: figures checked against the printed text: (section, measure); per-rater sections use every rater
 PRINTED_PANEL = (("reproducibility", "agreement"), ("reproducibility", "fleiss_kappa"))
 PRINTED_RATER = (("repeatability", "agreement"), ("accuracy", "effectiveness"))

@@ -793,3 +793,15 @@ def test_criteria_shape_problems(criteria: Any, key: str, fragment: str) -> None
     study = make_study(criteria=criteria)
     probs = errors(validate_criteria(study, make_results(study)))
     assert any(p.location.key == key and fragment in p.message for p in probs), [p.format() for p in probs]
+
+
+def test_ordinal_agreement_shares_can_be_named_in_an_ordinal_study_with_a_reference() -> None:
+    from reportgen.study import load_study
+
+    study = load_study(Path(__file__).parent.parent / "studies/finish-grading/study.yaml")
+    m = applicable_measures(study, has_reference=True)
+    for path in ("accuracy.*.exact_agreement", "accuracy.*.within_one_agreement",
+                 "panel_accuracy.exact_agreement", "panel_accuracy.within_one_agreement"):
+        assert path in m
+    nominal = make_study(scale="nominal", categories=NOMINAL, defect_category=None)
+    assert "accuracy.*.within_one_agreement" not in applicable_measures(nominal, has_reference=True)
