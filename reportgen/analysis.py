@@ -1320,29 +1320,22 @@ def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
     from .stats.bootstrap import FeatureGroup, bootstrap_groups
 
     taken = _choose_groups(d, col, resamples)
-    views: dict[tuple[int, int, int], tuple[np.ndarray, np.ndarray]] = {}
+    # one feature group per block: blocks of one compression share its inverse map (so the
+    # draws are joined over them at no cost) and each block's replicate sums stay contiguous
     groups: dict[str, FeatureGroup] = {}
     stats: dict[str, tuple[str, Callable[[np.ndarray], np.ndarray]]] = {}
-    for name in taken:
-        grp = col.groups[name]
-        used = [bn for bn in grp.blocks if any(
-            b.group == name and b.block == bn for b in col.boot.values())]
-        mats = [grp.blocks[bn][1]() for bn in used]
-        edges = np.cumsum([0, *(m.shape[1] for m in mats)])
-        where = {bn: slice(int(edges[i]), int(edges[i + 1])) for i, bn in enumerate(used)}
-        feats = mats[0] if len(mats) == 1 else np.concatenate(mats, axis=1)
-        groups[name] = FeatureGroup(feats, grp.multiplicity, grp.inverse)
-        for path, b in col.boot.items():
-            if b.group == name:
-                fn = b.from_sums if len(mats) == 1 else _BlockFn(b.from_sums, where[b.block], views)
-                stats[path] = (name, fn)
     for path, b in col.boot.items():
         if b.group not in taken:
             col.warn(path, b.too_large)
+            continue
+        key = f"{b.group}/{b.block}"
+        if key not in groups:
+            grp = col.groups[b.group]
+            groups[key] = FeatureGroup(grp.blocks[b.block][1](), grp.multiplicity, grp.inverse)
+        stats[path] = (key, b.from_sums)
     res = bootstrap_groups(
         groups, stats, resamples=resamples, seed=seed, confidence_level=d.level, method="bca"
     )
-    views.clear()
     methods: set[str] = set()
     used_paths: list[str] = []
     for p in col.boot:
@@ -1375,31 +1368,6 @@ def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
     )
     info["measures"] = used_paths
     return info
-
-
-class _BlockFn:
-    """``from_sums`` of one block of a group's side-by-side features.
-
-    The column slice of a batch is taken once per input array (kept alive and compared by
-    identity), so that every statistic of a block sees the same array object and shared
-    evaluations (:class:`_Shared`) are computed once.
-    """
-
-    def __init__(
-        self,
-        fn: Callable[[np.ndarray], np.ndarray],
-        sl: slice,
-        views: dict[tuple[int, int, int], tuple[np.ndarray, np.ndarray]],
-    ) -> None:
-        self.fn, self.sl, self.views = fn, sl, views
-
-    def __call__(self, s: np.ndarray) -> np.ndarray:
-        key = (id(s), self.sl.start, self.sl.stop)
-        hit = self.views.get(key)
-        if hit is None or hit[0] is not s:
-            hit = (s, s[..., self.sl])
-            self.views[key] = hit
-        return self.fn(hit[1])
 
 
 _PLAIN = (type(None), str, bool, int)

@@ -800,12 +800,27 @@ def is_read_only(path: Path) -> bool:
 
 
 def write_output(path: str | Path, data: bytes, *, mode: int = 0o644) -> None:
-    """Write a user-requested output file whole or not at all (temp sibling, fsync, replace)."""
+    """Write a user-requested output file whole or not at all (temp sibling, fsync, replace).
+
+    A read-only file (a built or archived report), or any file in a read-only folder or an
+    archived revision folder, is never replaced (ExistsError, also when run as root); a path
+    that cannot be written is bad usage (InputError naming it), not an internal error.
+    """
     import tempfile
 
     final = Path(path)
-    final.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=final.parent, prefix=f".{final.name}.", suffix=".part")
+    folder = final.parent
+    if final.exists() and is_read_only(final):
+        raise ExistsError(f"{final} is read-only (a built or archived report?); it is never overwritten — choose another file")
+    if folder.is_dir() and (is_read_only(folder) or (folder / ENTRY_NAME).exists()):
+        raise ExistsError(f"{folder} is a read-only folder (an archived revision?); nothing is written into it — choose another folder")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{final.name}.", suffix=".part")
+    except OSError as exc:
+        blocker = next((p for p in (folder, *folder.parents) if p.exists()), None)
+        why = f"{blocker} is a file, not a folder" if blocker and not blocker.is_dir() else (exc.strerror or str(exc))
+        raise InputError.single(final, f"cannot write this file: {why}") from None
     try:
         with os.fdopen(fd, "wb") as f:
             f.write(data)
@@ -813,6 +828,10 @@ def write_output(path: str | Path, data: bytes, *, mode: int = 0o644) -> None:
             os.fsync(f.fileno())
         os.chmod(tmp, mode)
         os.replace(tmp, final)
+    except OSError as exc:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise InputError.single(final, f"cannot write this file: {exc.strerror or exc}") from None
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)

@@ -93,7 +93,7 @@ def design_warnings(study: Study, ratings: Ratings) -> list[dict[str, str]]:
         out.append(
             {
                 "kind": "few-items",
-                "message": f"only {n_items} items; at least {MIN_ITEMS} is common practice, and intervals will be wide",
+                "message": f"only {n_items} item{'s' if n_items != 1 else ''}; at least {MIN_ITEMS} is common practice, and intervals will be wide",
             }
         )
     if ratings.reference is not None:
@@ -111,6 +111,13 @@ def design_warnings(study: Study, ratings: Ratings) -> list[dict[str, str]]:
     for r, rid in enumerate(ratings.raters):
         given = codes[:, r, :]
         given = given[given != MISSING]
+        if not given.size:
+            out.append(
+                {
+                    "kind": "rater-without-ratings",
+                    "message": f"rater {rid} gave no rating at all; every figure of this rater is left empty",
+                }
+            )
         if given.size and (given == given[0]).all():
             code = ratings.categories[int(given[0])]
             out.append(
@@ -119,6 +126,21 @@ def design_warnings(study: Study, ratings: Ratings) -> list[dict[str, str]]:
                     "message": f"rater {rid} gave every rating as {code}; kappa-type measures are not informative for this rater",
                 }
             )
+    for t in range(ratings.n_trials):
+        if ratings.n_trials > 1 and not (codes[:, :, t] != MISSING).any():
+            out.append(
+                {
+                    "kind": "trial-without-ratings",
+                    "message": f"trial {t + 1} holds no rating at all; check that the ratings of every trial were entered",
+                }
+            )
+    if ratings.n_raters < 2:
+        out.append(
+            {
+                "kind": "single-rater",
+                "message": "only 1 rater: reproducibility (agreement among the raters) cannot be measured",
+            }
+        )
     if ratings.n_trials < 2:
         out.append(
             {

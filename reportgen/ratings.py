@@ -699,16 +699,22 @@ def _map_column(
 
 def _code_lookup(
     codes: Sequence[str],
+    labels: Sequence[str] = (),
 ) -> tuple[Callable[[str], int], Callable[[str], tuple[str, str | None]]]:
     index = {c: i for i, c in enumerate(codes)}
+    # a label typed instead of its code (case ignored): named in the hint, never accepted
+    by_label = {lab.casefold(): c for c, lab in zip(codes, labels, strict=False) if lab != c}
 
     def lookup(u: str) -> int:
         return index.get(u, -1)
 
     def describe(u: str) -> tuple[str, str | None]:
-        s = suggest(u, list(codes))
+        code = by_label.get(u.casefold())
+        s = code or suggest(u, list(codes))
         hint = (
-            f"did you mean {s!r}? declared codes: {', '.join(codes)}"
+            f"{u!r} is the label of category {code!r}: write the code. declared codes: {', '.join(codes)}"
+            if code
+            else f"did you mean {s!r}? declared codes: {', '.join(codes)}"
             if s
             else f"declared codes: {', '.join(codes)}"
         )
@@ -965,7 +971,7 @@ def _long_records(
     # trials
     trial = _trial_column(table, cols.get("trial"), study, problems, n)
     # ratings
-    lookup, describe = _code_lookup(study.category_codes)
+    lookup, describe = _code_lookup(study.category_codes, [c.label for c in study.categories])
     rating = _map_column(
         table,
         rating_col,
@@ -1129,7 +1135,7 @@ def _wide_records(
         )
     n = table.n_rows
     m = len(rater_cols)
-    lookup, describe = _code_lookup(study.category_codes)
+    lookup, describe = _code_lookup(study.category_codes, [c.label for c in study.categories])
     mapped = [
         _map_column(
             table,
@@ -1321,7 +1327,7 @@ def _decode_labels(
 def _reference_from_column(
     table: Table, col: int, recs: _Records, study: Study, problems: _Problems
 ) -> np.ndarray:
-    lookup, describe = _code_lookup(study.category_codes)
+    lookup, describe = _code_lookup(study.category_codes, [c.label for c in study.categories])
     ref_rows = _map_column(
         table,
         col,
@@ -1403,19 +1409,24 @@ def _reference_from_file(
                 ),
             )
     for j, c in enumerate(table.columns):
-        if j not in (item_col, ref_col):
-            problems.add(
-                "header problems",
-                table.problem(
-                    None,
-                    j,
-                    f"unknown column {c.name!r} in the reference file",
-                    "reference header: item,reference",
-                ),
-            )
+        if j in (item_col, ref_col):
+            continue
+        if c.name.lower() == "borderline" or suggest(c.name, ["item", "reference"]) is None:
+            # the item list of `reportgen plan` (item,reference,borderline) serves as reference file
+            table.notes.append(f"{table.shown}: column {c.name!r} ignored")
+            continue
+        problems.add(
+            "header problems",
+            table.problem(
+                None,
+                j,
+                f"unknown column {c.name!r} in the reference file",
+                "reference header: item,reference",
+            ),
+        )
     if item_col is None or ref_col is None:
         return None, table
-    lookup, describe = _code_lookup(study.category_codes)
+    lookup, describe = _code_lookup(study.category_codes, [c.label for c in study.categories])
     ref = _map_column(
         table,
         ref_col,

@@ -63,7 +63,8 @@ def _load_signer(key: Path, passphrase: bytes | None):  # type: ignore[no-untype
     if not key.is_file():
         raise InputError.single(key, "the key file does not exist", key="--key")
     try:
-        signer = signers.SimpleSigner.load_pkcs12(str(key), passphrase=passphrase)
+        with _quiet_pyhanko():  # pyHanko logs a traceback for a wrong passphrase; we say it plainly
+            signer = signers.SimpleSigner.load_pkcs12(str(key), passphrase=passphrase)
     except Exception as exc:  # noqa: BLE001 - pyHanko/cryptography raise many types here
         hint = "give the passphrase with --passphrase-env VAR" if passphrase is None else "check the passphrase"
         raise InputError.single(key, f"cannot read the PKCS#12 key file: {type(exc).__name__}: {exc}", hint=hint) from None

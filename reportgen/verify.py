@@ -237,6 +237,27 @@ def _relative_inputs(doc: Any) -> dict[str, str]:
     return out
 
 
+def _attachment_names(study_name: str, inputs: dict[str, str]) -> dict[str, str]:
+    """The attachment name ``build`` gives each input: its base name, with ``-2``, ``-3`` …
+    before the extension when an earlier attachment (study definition, ratings, reference, key,
+    in that order) has the same name — as in ``render.build._attachments``."""
+    seen = {study_name}
+    out: dict[str, str] = {}
+    for role in ("ratings", "reference", "key"):
+        rel = inputs.get(role)
+        if rel is None:
+            continue
+        base = PurePosixPath(rel.replace("\\", "/")).name
+        name, n = base, 2
+        while name in seen:
+            stem, dot, ext = base.rpartition(".")
+            name = f"{stem}-{n}.{ext}" if dot else f"{base}-{n}"
+            n += 1
+        seen.add(name)
+        out[role] = name
+    return out
+
+
 def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Callable[[str], None] | None = None) -> tuple[dict[str, Any], Any]:
     """Write the attachments into a temporary folder, load, analyse and judge them.
 
@@ -256,6 +277,7 @@ def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Calla
         study_path = root / study_name
         study_path.write_bytes(attachments[study_name])
         by_base = {PurePosixPath(n).name: n for n in attachments}
+        by_role = _attachment_names(study_name, _relative_inputs(doc))
         for role, rel in _relative_inputs(doc).items():
             safe = _safe_name(rel)
             if safe is None or Path(rel).expanduser().is_absolute():
@@ -268,7 +290,9 @@ def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Calla
             if role == "templates":
                 target.mkdir(parents=True, exist_ok=True)  # templates do not change a figure
                 continue
-            name = by_base.get(PurePosixPath(safe).name)
+            name = by_role.get(role)
+            if name not in attachments:
+                name = by_base.get(PurePosixPath(safe).name)
             if name is None:
                 raise ValueError(f"the {role} file {rel!r} that the study definition names is not attached")
             target.write_bytes(attachments[name])

@@ -65,7 +65,7 @@ class StrictWarnings(ReportgenError):
     metavar="DIR",
     help="Archive folder for --archive (default: $REPORTGEN_ARCHIVE, else archive/ beside output/).",
 )
-@click.option("--quiet", is_flag=True, help="Print nothing but errors.")
+@click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
 def command(
     study_file: Path,
     output: Path,
@@ -90,7 +90,13 @@ def command(
     if archive_dir is not None and not archive:
         raise click.UsageError("--archive-dir is used only together with --archive.")
     from ..ratings import load_ratings
-    from ..render.build import build_report, compute_results, resolve_generated_at, revision_dir
+    from ..render.build import (
+        build_report,
+        compute_results,
+        refuse_archive_target,
+        resolve_generated_at,
+        revision_dir,
+    )
     from ..study import load_study
 
     quiet = quiet or bool(os.environ.get("CI"))
@@ -104,10 +110,12 @@ def command(
     when = resolve_generated_at(generated_at)
     study = load_study(study_file)
     target = revision_dir(output, study)
-    if target.exists() and not replace:
-        from ..render.build import write_folder
+    refuse_archive_target(target)
+    if target.exists():
+        from ..render.build import foreign_files, write_folder
 
-        write_folder(target, {}, replace=False)  # raises ExistsError
+        if not replace or foreign_files(target):
+            write_folder(target, {}, replace=replace)  # raises ExistsError
     progress("reading ratings")
     ratings = load_ratings(study)
     results = compute_results(study, ratings, progress=progress)

@@ -154,7 +154,7 @@ def _verdict_text(verdict: Any) -> str:
     default=None,
     help="Folder holding the demo studies (one sub-folder with a study.yaml each).",
 )
-@click.option("--quiet", is_flag=True, help="Print nothing but errors.")
+@click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
 def command(output: Path, studies: Path | None, quiet: bool) -> None:
     """Run the main job on every demo study: check, analyse, judge and build its report."""
     folder = studies if studies is not None else _default_studies()

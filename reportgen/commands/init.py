@@ -174,7 +174,7 @@ def command(
 
     Refuses to overwrite existing files (exit 5).
     """
-    from ..errors import ExistsError
+    from ..errors import ExistsError, InputError
 
     cats = _categories(categories or DEFAULT_CATEGORIES[scale], scale)
     rater_ids = _split_list(raters, "rater ids")
@@ -200,18 +200,26 @@ def command(
         raise ExistsError(
             f"{', '.join(str(p) for p in existing)} already exist(s); init never overwrites files"
         )
-    folder.mkdir(parents=True, exist_ok=True)
     written: list[Path] = []
     try:
+        folder.mkdir(parents=True, exist_ok=True)
         for name, text in contents.items():
             target = folder / name
             with open(target, "x", encoding="utf-8", newline="\n") as fh:
+                written.append(target)
                 fh.write(text)
-            written.append(target)
     except FileExistsError as exc:
         for p in written:
             p.unlink()
+        if str(exc.filename) not in {str(folder / name) for name in FILES}:  # mkdir met a file
+            raise InputError.single(folder, f"cannot create the folder: {exc.filename} is a file") from None
         raise ExistsError(f"{exc.filename} already exists; init never overwrites files") from None
+    except OSError as exc:
+        for p in written:
+            p.unlink(missing_ok=True)
+        blocker = next((p for p in (folder, *folder.parents) if p.exists()), None)
+        why = f"{blocker} is a file, not a folder" if blocker and not blocker.is_dir() else (exc.strerror or str(exc))
+        raise InputError.single(folder, f"cannot write the study here: {why}") from None
     click.echo(
         f"wrote {folder / 'study.yaml'}, {folder / 'ratings.csv'} ({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}"
     )

@@ -86,7 +86,7 @@ def _progress(quiet: bool) -> Callable[[str], None] | None:
     help="Simulated studies per item count in the advice.",
 )
 @click.option("--json", "as_json", is_flag=True, help="Print the plan summary and advice as JSON.")
-@click.option("--quiet", is_flag=True, help="Print nothing but errors.")
+@click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
 def command(
     study_file: Path,
     items_file: Path | None,

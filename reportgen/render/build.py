@@ -226,14 +226,48 @@ def revision_dir(output_dir: Path, study: Study) -> Path:
     return Path(output_dir) / study.id / f"rev{study.revision}"
 
 
+def refuse_archive_target(target: Path) -> None:
+    """Raise ExistsError when ``target`` (``<output>/<id>/rev<N>``) lies in a reportgen archive.
+
+    An archive folder is written only by ``reportgen archive``: a build into it would replace an
+    archived revision (``--replace``) or leave a revision folder there that the index does not know.
+    """
+    from ..archive import ENTRY_NAME, INDEX_NAME
+
+    root = target.parent.parent
+    if (target / ENTRY_NAME).exists() or (root / INDEX_NAME).exists():
+        raise ExistsError(
+            f"{root} is a reportgen archive: builds are never written into it, and archived "
+            "revisions are never overwritten; build into another --output folder, then run "
+            "reportgen archive"
+        )
+
+
+def foreign_files(target: Path) -> list[str]:
+    """Files in an existing revision folder that ``build`` does not write (a signed copy, notes …)."""
+    stem = f"{target.parent.name}-{target.name}"
+    ours = {f"{stem}.html", f"{stem}.pdf", "results.json"}
+    return sorted(
+        p.name
+        for p in target.iterdir()
+        if p.name not in ours and not (p.suffix == ".svg" and p.is_file())
+    )
+
+
 def write_folder(target: Path, files: Mapping[str, bytes], *, replace: bool = False) -> Path:
     """Write ``files`` into ``target`` atomically: a temporary sibling, then one rename."""
     parent = target.parent
+    refuse_archive_target(target)
     parent.mkdir(parents=True, exist_ok=True)
     if target.exists() and not replace:
         raise ExistsError(
             f"{target} already exists: a built revision is never overwritten; "
             "raise study.revision in the study definition, or pass --replace for a draft"
+        )
+    if target.exists() and (extra := foreign_files(target)):
+        raise ExistsError(
+            f"{target} holds files that build did not write ({', '.join(extra)}); --replace would "
+            "delete them: move them elsewhere first, or raise study.revision"
         )
     _clean_stale(parent, target.name)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".part", dir=parent))
@@ -308,8 +342,11 @@ def build_report(
     from ..ratings import load_ratings
 
     target = revision_dir(Path(output_dir), study)
+    refuse_archive_target(target)
     if target.exists() and not replace:
         write_folder(target, {}, replace=False)  # raises ExistsError with the message
+    if target.exists() and foreign_files(target):
+        write_folder(target, {}, replace=True)  # raises ExistsError naming the files
     when = resolve_generated_at(generated_at)
     say = progress or (lambda _m: None)
     if ratings is None:

@@ -231,22 +231,34 @@ def _as_patterns(
 
 
 def _replicate_sums(
-    f: np.ndarray, mult: np.ndarray, resamples: int, rng: np.random.Generator
-) -> np.ndarray:
-    """``W @ F`` for all replicates, in chunks of replicates to bound memory."""
-    out = np.empty((resamples, f.shape[1]), dtype=np.float64)
+    f: np.ndarray | Sequence[np.ndarray],
+    mult: np.ndarray,
+    resamples: int,
+    rng: np.random.Generator,
+) -> np.ndarray | list[np.ndarray]:
+    """``W @ F`` for all replicates, in chunks of replicates to bound memory.
+
+    ``f`` may be a list of feature blocks (rows = the same patterns): each gets its own
+    contiguous output, from the same draws ``W``.
+    """
+    blocks = [f] if isinstance(f, np.ndarray) else list(f)
+    p = blocks[0].shape[0]
+    outs = [np.empty((resamples, blk.shape[1]), dtype=np.float64) for blk in blocks]
     # Bound the replicate × pattern cells, and the single-item top-up draws of the Poissonised
     # sampler (about 2 sqrt(n) per replicate), per chunk.
     top_up = 2.0 * np.sqrt(float(mult.sum())) + 1.0
-    step = int(min(resamples, _CHUNK_CELLS // max(1, f.shape[0]), (_CHUNK_CELLS // 4) / top_up))
+    step = int(min(resamples, _CHUNK_CELLS // max(1, p), (_CHUNK_CELLS // 4) / top_up))
     step = max(1, step)
     order = np.argsort(mult, kind="stable")
-    f, mult = f[order], mult[order]  # sums do not depend on the order of the patterns
+    if not np.array_equal(order, np.arange(p)):  # sums do not depend on the order of patterns
+        blocks, mult = [blk[order] for blk in blocks], mult[order]
     sampler = _PatternSampler(mult)
     for start in range(0, resamples, step):
         stop = min(resamples, start + step)
-        out[start:stop] = sampler.draw(rng, stop - start) @ f
-    return out
+        w = sampler.draw(rng, stop - start)
+        for blk, out in zip(blocks, outs, strict=True):
+            np.matmul(w, blk, out=out[start:stop])
+    return outs[0] if isinstance(f, np.ndarray) else outs
 
 
 def _rng_iv(seed: int | None, rng: np.random.Generator | None) -> np.random.Generator:
@@ -300,17 +312,17 @@ def _interval(
         )
     if valid < 2:
         return empty("No bootstrap interval: fewer than two resamples gave a defined value.")
-    r = np.sort(reps[valid_mask] if valid < reps.shape[0] else reps)
+    r = reps[valid_mask] if valid < reps.shape[0] else reps
     centred = r - r.mean()
     se = float(np.sqrt((centred @ centred) / (valid - 1)))
     alpha = (1.0 - level) / 2.0
     probs = np.array([alpha, 1.0 - alpha])
-    if r[0] == r[-1]:
+    if r.min() == r.max():
         notes.append("Every bootstrap resample gave the same value.")
     if method == "bca":
         nd = NormalDist()
-        below = float(np.searchsorted(r, theta_hat, side="left"))
-        ties = float(np.searchsorted(r, theta_hat, side="right")) - below
+        below = float(np.count_nonzero(r < theta_hat))
+        ties = float(np.count_nonzero(r == theta_hat))
         prop = (below + 0.5 * ties) / valid
         jv = np.isfinite(jack)
         fallback = None
@@ -340,7 +352,10 @@ def _interval(
         if fallback is not None:
             notes.append(f"BCa correction not possible ({fallback}); percentile interval given.")
             label = _METHODS["percentile"]
-    lo, hi = _sorted_quantile(r, float(probs[0])), _sorted_quantile(r, float(probs[1]))
+    # the two quantiles need four order statistics at most: a partial sort finds them
+    kth = sorted({i for p in probs.tolist() for i in _quantile_positions(valid, float(p))})
+    part = np.partition(r, kth)
+    lo, hi = _sorted_quantile(part, float(probs[0])), _sorted_quantile(part, float(probs[1]))
     return BootstrapResult(
         estimate=theta_hat, ci_low=float(lo), ci_high=float(hi), se=se, method=label,
         resamples=resamples, seed=seed, valid=valid, warnings=tuple(notes),
@@ -348,11 +363,18 @@ def _interval(
     )
 
 
+def _quantile_positions(size: int, p: float) -> tuple[int, int]:
+    """The two order statistics (0-based) that the linear quantile ``p`` interpolates between."""
+    lo = min(max(int(np.floor(p * (size - 1))), 0), size - 1)
+    return lo, min(lo + 1, size - 1)
+
+
 def _sorted_quantile(x: np.ndarray, p: float) -> float:
-    """``np.quantile(x, p)`` (default linear method, same arithmetic) of an already sorted array."""
+    """``np.quantile(x, p)`` (default linear method, same arithmetic) of an array whose entries
+    at the two positions of :func:`_quantile_positions` are in sorted place (sorted, or
+    partitioned there)."""
     h = p * (x.shape[0] - 1)
-    lo = min(max(int(np.floor(h)), 0), x.shape[0] - 1)
-    hi = min(lo + 1, x.shape[0] - 1)
+    lo, hi = _quantile_positions(x.shape[0], p)
     t = h - lo
     a, b = float(x[lo]), float(x[hi])
     diff = b - a
@@ -569,10 +591,9 @@ def bootstrap_groups(
         g = used[0]
         keep = mults[g] > 0
         cell_mult = mults[g][keep]
-        joint = mats[g][keep]
         if not keep.all():
-            mats[g], mults[g] = joint, cell_mult
-        edges = {g: slice(0, joint.shape[1])}
+            mats[g], mults[g] = mats[g][keep], cell_mult
+        blocks = [mats[g]]
     else:
         for g in used:
             if groups[g].inverse is None:
@@ -584,11 +605,8 @@ def bootstrap_groups(
             [mats[g].shape[0] for g in used],
         )
         blocks = [mats[g][mp] for g, mp in zip(used, maps, strict=True)]
-        widths = np.cumsum([0, *(blk.shape[1] for blk in blocks)])
-        edges = {g: slice(int(widths[i]), int(widths[i + 1])) for i, g in enumerate(used)}
-        joint = np.concatenate(blocks, axis=1)
     generator = _rng_iv(seed, rng)
-    reps = _replicate_sums(joint, cell_mult, b, generator)
+    reps = dict(zip(used, _replicate_sums(blocks, cell_mult, b, generator), strict=True))
     out: dict[str, BootstrapResult] = {}
     # the arrays each group's statistics are evaluated on, made once per group so that
     # statistics sharing work (several outputs of one computation) can recognise them
@@ -598,8 +616,7 @@ def bootstrap_groups(
         if g not in inputs:
             f = mats[g]
             total = mults[g].astype(np.float64) @ f
-            reps_g = reps if len(used) == 1 else np.ascontiguousarray(reps[:, edges[g]])
-            inputs[g] = (total, reps_g, total[None, :] - f)
+            inputs[g] = (total, reps[g], total[None, :] - f)
         key = (g, id(fn))
         if key not in cache:
             total, reps_g, jack_sums = inputs[g]

@@ -1,0 +1,132 @@
+"""Regression tests for defects found in a hands-on audit of the intake and `check`/`init`.
+
+Each test names the defect it guards against.  The studies are small invented ones made by the
+shared ``make_study`` fixture (ordinal P/S/X, raters R1–R3, two trials).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from conftest import default_ratings, default_reference
+
+from reportgen.design import design_warnings
+from reportgen.errors import InputError
+from reportgen.ratings import load_ratings
+from reportgen.study import load_study
+
+
+def _warnings(path: Path) -> list[dict[str, str]]:
+    study = load_study(path)
+    return design_warnings(study, load_ratings(study))
+
+
+# -- a label typed instead of its category code ----------------------------------------------
+
+
+def test_a_label_instead_of_a_code_is_refused_with_the_code_named(make_study) -> None:
+    """Defect: 'Scrap' (the label of X) was refused with only the list of codes."""
+    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows[0] = (*rows[0][:3], "Scrap")
+    rows[1] = (*rows[1][:3], "standard")
+    study = load_study(make_study(ratings_rows=rows))
+    with pytest.raises(InputError) as exc:
+        load_ratings(study)
+    problems = exc.value.problems()
+    assert [(p.location.line, p.message) for p in problems] == [
+        (2, "unknown category 'Scrap'"),
+        (3, "unknown category 'standard'"),
+    ]
+    assert problems[0].hint == "'Scrap' is the label of category 'X': write the code. declared codes: P, S, X"
+    assert problems[1].hint.startswith("'standard' is the label of category 'S'")
+
+
+def test_a_near_code_still_gets_did_you_mean(make_study) -> None:
+    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows[0] = (*rows[0][:3], "p")
+    with pytest.raises(InputError) as exc:
+        load_ratings(load_study(make_study(ratings_rows=rows)))
+    assert exc.value.problems()[0].hint == "did you mean 'P'? declared codes: P, S, X"
+
+
+# -- the plan's item list as reference file ---------------------------------------------------
+
+
+def test_item_list_with_borderline_column_serves_as_reference(make_study) -> None:
+    """Defect: `reference: items.csv` (item,reference,borderline) was refused for its
+    borderline column, although the item list is where the references already are."""
+    ref = default_reference(30, ["P", "S", "X"])
+    text = "item,reference,borderline\n" + "".join(
+        f"{i},{c},{'yes' if n % 4 == 0 else 'no'}\n" for n, (i, c) in enumerate(ref)
+    )
+    study = load_study(make_study(reference="items.csv", reference_text=text))
+    ratings = load_ratings(study)
+    assert ratings.reference is not None
+    assert [ratings.categories[k] for k in ratings.reference[:4]] == ["P", "S", "X", "P"]
+    assert any("column 'borderline' ignored" in n for n in ratings.notes)
+
+
+def test_a_misspelt_reference_file_column_is_still_refused(make_study) -> None:
+    ref = default_reference(30, ["P", "S", "X"])
+    text = "item,reference,refrence\n" + "".join(f"{i},{c},{c}\n" for i, c in ref)
+    with pytest.raises(InputError) as exc:
+        load_ratings(load_study(make_study(reference_text=text)))
+    p = exc.value.problems()[0]
+    assert p.message == "unknown column 'refrence' in the reference file" and p.location.line == 1
+
+
+# -- design warnings --------------------------------------------------------------------------
+
+
+def test_single_item_warning_is_singular(make_study) -> None:
+    """Defect: 'only 1 items'."""
+    w = _warnings(make_study(n_items=1))
+    assert w[0]["kind"] == "few-items"
+    assert w[0]["message"].startswith("only 1 item; at least 30")
+
+
+def test_a_rater_without_any_rating_is_a_warning(make_study) -> None:
+    """Defect: with `missing: allow`, a rater with no rating at all passed `check --strict`."""
+    rows = [
+        r
+        for r in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+        if r[1] != "R3"
+    ]
+    w = _warnings(make_study(ratings_rows=rows, missing="allow"))
+    assert [x["kind"] for x in w] == ["rater-without-ratings"]
+    assert w[0]["message"].startswith("rater R3 gave no rating at all")
+
+
+def test_a_trial_without_any_rating_is_a_warning(make_study) -> None:
+    rows = [
+        r
+        for r in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 3, ["P", "S", "X"])
+        if r[2] != 3
+    ]
+    w = _warnings(make_study(ratings_rows=rows, trials=3, missing="allow"))
+    assert [x["kind"] for x in w] == ["trial-without-ratings"]
+    assert w[0]["message"].startswith("trial 3 holds no rating at all")
+
+
+def test_a_single_rater_is_a_warning_and_strict_fails(make_study, run_cli) -> None:
+    """Defect: a one-rater study (no reproducibility at all) gave no warning."""
+    path = make_study(raters=[{"id": "R1", "name": "Rater 1"}])
+    assert [x["kind"] for x in _warnings(path)] == ["single-rater"]
+    code, out, _ = run_cli("check", path, "--strict", "--json")
+    assert code == 4
+    assert json.loads(out)["warnings"][0]["message"].startswith("only 1 rater: reproducibility")
+
+
+# -- init into an impossible place ------------------------------------------------------------
+
+
+def test_init_under_a_file_is_bad_usage_not_an_internal_error(run_cli, tmp_path: Path) -> None:
+    """Defect: `reportgen init some-file/x` ended with exit 70 'internal error'."""
+    blocker = tmp_path / "notes.txt"
+    blocker.write_text("keep me\n")
+    code, _, err = run_cli("init", blocker / "study")
+    assert code == 2
+    assert "cannot write the study here" in err and "notes.txt is a file, not a folder" in err
+    assert blocker.read_text() == "keep me\n"
