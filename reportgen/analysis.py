@@ -154,7 +154,9 @@ class _Group:
 
     ``blocks`` maps a block name to ``(width, builder)``; a builder makes the block's
     (patterns × width) feature rows only when the group is bootstrapped.  ``priority`` orders
-    the groups when the study is too large to bootstrap all of them (0 = always).
+    the groups when the study is too large to bootstrap all of them: 0 the pooled count
+    patterns (always), 1 a rater's kappa with trials (its analytic interval is too narrow),
+    2 a rater's repeatability, 3 the rating rows (Conger, Light).
     """
 
     multiplicity: np.ndarray

@@ -24,6 +24,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import posixpath
 import re
 import tempfile
 import time
@@ -213,13 +214,6 @@ def _short(v: Any) -> str:
 # --------------------------------------------------------------------------- recomputation
 
 
-def _safe_name(name: str) -> str | None:
-    p = PurePosixPath(name.replace("\\", "/"))
-    if p.is_absolute() or not p.parts or any(part in ("", ".", "..") for part in p.parts) or "\0" in name:
-        return None
-    return p.as_posix()
-
-
 def _relative_inputs(doc: Any) -> dict[str, str]:
     """Relative paths the study definition names: ratings, reference, key, templates folder."""
     out: dict[str, str] = {}
@@ -258,6 +252,20 @@ def _attachment_names(study_name: str, inputs: dict[str, str]) -> dict[str, str]
     return out
 
 
+def _replace_value(text: str, parsed: Any, role: str, old: str, new: str) -> str:
+    """``text`` with the value of ``role`` (as located by the YAML reader) changed to ``new``."""
+    keys = ("ratings", "file") if role == "ratings" and isinstance(parsed.data.get("ratings"), dict) else (role,)
+    loc = parsed.where(keys)
+    if loc.line is None:
+        raise ValueError(f"cannot locate the {role} path {old!r} in the study definition")
+    lines = text.splitlines(keepends=True)
+    start = sum(len(x) for x in lines[: loc.line - 1]) + (loc.column or 1) - 1
+    at = text.find(old, start)
+    if at < 0:
+        raise ValueError(f"the study definition names its {role} by a path verify cannot follow ({old!r})")
+    return text[:at] + new + text[at + len(old):]
+
+
 def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Callable[[str], None] | None = None) -> tuple[dict[str, Any], Any]:
     """Write the attachments into a temporary folder, load, analyse and judge them.
 
@@ -271,31 +279,46 @@ def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Calla
 
     say = progress or (lambda _m: None)
     text = attachments[study_name].decode("utf-8-sig", errors="strict")
-    doc = parse_yaml(text, shown=f"attachment {study_name}").data
+    parsed = parse_yaml(text, shown=f"attachment {study_name}")
+    doc = parsed.data
+    inputs = _relative_inputs(doc)
+    # the inputs may lie above the study's folder (``../data/ratings.csv``): the study definition
+    # is placed deep enough in the temporary folder that every such path stays inside it
+    up = 0
+    for rel in inputs.values():
+        parts = PurePosixPath(posixpath.normpath(rel.replace("\\", "/"))).parts
+        up = max(up, next((i for i, part in enumerate(parts) if part != ".."), len(parts)))
     with tempfile.TemporaryDirectory(prefix="reportgen-verify-") as tmp:
         root = Path(tmp)
-        study_path = root / study_name
-        study_path.write_bytes(attachments[study_name])
+        home = root.joinpath(*(["in"] * up))
+        home.mkdir(parents=True, exist_ok=True)
+        study_path = home / study_name
         by_base = {PurePosixPath(n).name: n for n in attachments}
-        by_role = _attachment_names(study_name, _relative_inputs(doc))
-        for role, rel in _relative_inputs(doc).items():
-            safe = _safe_name(rel)
-            if safe is None or Path(rel).expanduser().is_absolute():
+        by_role = _attachment_names(study_name, inputs)
+        for role, rel in inputs.items():
+            written = rel.replace("\\", "/")
+            if Path(rel).expanduser().is_absolute():
+                # an absolute path names a file on the machine that built the report; read the
+                # attached copy instead, by pointing the temporary study definition at it
+                written = f"absolute/{role}/{PurePosixPath(written).name}"
+                text = _replace_value(text, parsed, role, rel, written)
+            target = Path(posixpath.normpath(home / written))
+            if "\0" in written or not target.is_relative_to(root):
                 raise ValueError(
-                    f"the study definition names its {role} by an absolute or outside path ({rel!r}); "
+                    f"the study definition names its {role} by a path verify cannot follow ({rel!r}); "
                     "verify recomputes only from the attached files"
                 )
-            target = root / safe
             target.parent.mkdir(parents=True, exist_ok=True)
             if role == "templates":
                 target.mkdir(parents=True, exist_ok=True)  # templates do not change a figure
                 continue
             name = by_role.get(role)
             if name not in attachments:
-                name = by_base.get(PurePosixPath(safe).name)
+                name = by_base.get(PurePosixPath(written).name)
             if name is None:
                 raise ValueError(f"the {role} file {rel!r} that the study definition names is not attached")
             target.write_bytes(attachments[name])
+        study_path.write_text(text, encoding="utf-8")
         say("loading the attached inputs")
         study = load_study(study_path)
         ratings = load_ratings(study)

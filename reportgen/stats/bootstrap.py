@@ -18,8 +18,16 @@ acceleration from the leave-one-item-out jackknife, computed exactly over patter
 (``total - F_p``, weighted by ``m_p``).  Replicates where the statistic is undefined (NaN) are
 left out, counted in ``valid`` and reported in a warning.
 
+Several families of coefficients (:func:`bootstrap_groups`): each keeps its own compression of
+the items (count-table coefficients over the items × categories patterns; coefficients whose
+features identify raters over distinct rating rows), and the item draws are made once, over the
+cells of the finest common partition (items alike in every family), with each family's feature
+rows laid out on those cells.  So every interval comes from the same resampled items, and a
+family whose rows rarely repeat does not spoil the compression of the others.
+
 Validated against: ``scipy.stats.bootstrap`` (BCa and percentile, resampling items) on small
-cases within Monte Carlo error; analytic standard errors on large samples
+cases within Monte Carlo error; analytic standard errors on large samples; identical replicate
+values for one statistic computed from two differently compressed groups
 (tests/stats/test_bootstrap.py).
 """
 
