@@ -338,11 +338,6 @@ def command(study_path: str, as_json: bool, quiet: bool) -> None:
     # A short-lived process holding one record per item (100,000 in a labelling campaign): the
     # cyclic garbage collector would only re-walk them while the verdict and the JSON are made.
     gc.disable()
-    # The engine multiplies many small matrices (bootstrap replicates × patterns): a second BLAS
-    # thread only spins and competes for the core (measured: typical study 20 ms → 37 ms on two
-    # shared cores).  Takes effect when numpy is first imported below; a user's setting wins.
-    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
-    os.environ.setdefault("MKL_NUM_THREADS", "1")
     from ..analysis import analyse
     from ..ratings import load_ratings
     from ..study import load_study
