@@ -319,6 +319,18 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
             raise InputError.single(path, f"no report PDF ({pdf_name}) in the folder")
         pdf = pdfs[0]
     attachments = read_attachments(pdf)
+    attached = attachments.get("results.json")
+    if attached is None:
+        raise InputError.single(
+            pdf, "the report PDF carries no results.json attachment; it cannot be archived",
+            hint="build the revision again with `reportgen build`",
+        )
+    if attached != results_path.read_bytes():
+        raise InputError.single(
+            results_path,
+            "differs from the results.json attached to the report PDF: the folder was changed after build",
+            hint="rebuild the revision; do not archive a changed report",
+        )
     inputs = {name: sha256_bytes(data) for name, data in attachments.items() if name != "results.json"}
     facts = _results_study_facts(results)
     yaml_names = [n for n in attachments if n.lower().endswith((".yaml", ".yml"))]

@@ -328,7 +328,7 @@ def _errorbars(ax: Any, xs: list[float], recs: list[dict[str, Any] | None], *, c
 
 def panel_chart(s: TrendSeries, index: int) -> Any:
     """Panel figures across the series, with intervals; returns a render ``Chart``."""
-    from .render.charts import INK, OCHRE, SLATE, Chart, _plt, _style, _svg
+    from .render.charts import INK, OCHRE, SLATE, Chart, _plt, _style, _svg, _tight
 
     measures = [m for m in CHART_PANEL if m in s.panel_measures][:4]
     plt = _plt()
@@ -351,7 +351,7 @@ def panel_chart(s: TrendSeries, index: int) -> Any:
         ax.set_xticklabels(_x_labels(s), fontsize=6.5 if cols == 2 else 7)
         ax.set_xlim(-0.6, len(xs) - 0.4)
         ax.tick_params(axis="x", labelbottom=True)
-    fig.tight_layout()
+    _tight(fig)
     names = ", ".join(MEASURE_LABELS.get(m, m) for m in measures)
     return Chart(
         name=f"history-panel-{index}",
@@ -364,7 +364,7 @@ def panel_chart(s: TrendSeries, index: int) -> Any:
 
 
 def inspector_chart(s: TrendSeries, index: int) -> Any | None:
-    from .render.charts import INK, OCHRE, SLATE, Chart, _plt, _style, _svg
+    from .render.charts import INK, OCHRE, SLATE, Chart, _plt, _style, _svg, _tight
 
     measures = [m for m in CHART_RATER if m in s.rater_measures][:2]
     if not measures or not s.inspectors:
@@ -391,7 +391,7 @@ def inspector_chart(s: TrendSeries, index: int) -> Any | None:
     ax.set_xticks(range(len(s.points)))
     ax.set_xticklabels(_x_labels(s), fontsize=7)
     ax.set_xlim(-0.6, len(s.points) - 0.4)
-    fig.tight_layout()
+    _tight(fig)
     return Chart(
         name=f"history-inspectors-{index}",
         svg=_svg(fig),

@@ -243,7 +243,9 @@ def read_table(
         delimiter = max(DELIMITERS, key=lambda d: counts[d]) if any(counts.values()) else ","
     body = text[pos:]
     parsed = None
-    if size > SMALL_BYTES:
+    # many short lines (a reference file of 100,000 items is ~1.3 MB) are slow in the stdlib
+    # reader too, so the line count decides as well as the size
+    if size > SMALL_BYTES or body.count("\n") > SMALL_ROWS:
         data = None
         if encoding in ("utf-8", "utf-8-sig"):  # the file's own bytes, without re-encoding
             data = raw[len(text[:pos].encode("utf-8")) + (3 if encoding == "utf-8-sig" else 0) :]
@@ -349,12 +351,17 @@ def _first_appearance(cat: Any) -> tuple[np.ndarray, list[str]]:
     """Codes and texts of a pandas categorical, renumbered in order of first appearance."""
     import pandas as pd
 
-    codes = np.asarray(cat.codes, dtype=np.int64)
-    texts = [str(c) for c in cat.categories]
-    order = np.asarray(pd.unique(codes), dtype=np.int64)
-    renumber = np.empty(len(texts), dtype=np.int64)
-    renumber[order] = np.arange(len(order))
-    return renumber[codes], [texts[k] for k in order]
+    raw = np.asarray(cat.codes)  # int8/int16/int32: hashing the narrow codes is faster
+    order = np.asarray(pd.unique(raw), dtype=np.int64)
+    # iterating over a pandas Index is slow; an object array and tolist() are not
+    picked = np.asarray(cat.categories, dtype=object)[order].tolist()
+    texts = [t if type(t) is str else str(t) for t in picked]
+    n = len(order)
+    if n == len(cat.categories) and (order == np.arange(n)).all():
+        return raw.astype(np.int64), texts  # already in order of first appearance
+    renumber = np.empty(len(cat.categories), dtype=np.int64)
+    renumber[order] = np.arange(n)
+    return renumber[raw], texts
 
 
 def _parse_stdlib(
@@ -403,7 +410,16 @@ def _parse_stdlib(
             rows.append(row)
             lines.append(start - 1)
     except csv.Error as exc:
-        pc.add(shown, f"cannot read this line as CSV: {exc}", line=reader.line_num + first_line - 1)
+        if "unexpected end of data" in str(exc) and reader.line_num > prev + 1:
+            # a quote opened on the first line of the record is never closed: name that line
+            pc.add(
+                shown,
+                "a quoted field starts on this line and is never closed (the rest of the file was read into it)",
+                line=prev + first_line,
+                hint='check this line for a stray " character',
+            )
+        else:
+            pc.add(shown, f"cannot read this line as CSV: {exc}", line=reader.line_num + first_line - 1)
     pc.raise_if_any()
     if header is None:
         raise InputError.single(shown, "no header line", line=first_line)
@@ -804,9 +820,21 @@ def load_ratings(study: Study) -> Ratings:
     # reported where they are)
     absent = codes == MISSING
     touched = ok_cell & ~good
-    if touched.any():
+    if touched.any() or not ok_cell.all():
         seen = np.zeros(absent.shape, dtype=bool)
         seen[recs.item[touched], recs.rater[touched], recs.trial[touched]] = True
+        # a row whose item, rater or trial could not be read (reported where it is) may be
+        # the rating of any cell it could stand for: those cells are not called absent too
+        parts = (recs.item, recs.rater, recs.trial)
+        for known in ((True, True, False), (True, False, True), (False, True, True),
+                      (True, False, False), (False, True, False), (False, False, True)):
+            sel = np.ones(len(recs.item), dtype=bool)
+            for arr, k in zip(parts, known, strict=True):
+                sel &= (arr >= 0) == k
+            if sel.any():
+                seen[tuple(arr[sel] if k else slice(None) for arr, k in zip(parts, known, strict=True))] = True
+        if (~ok_cell & (recs.item < 0) & (recs.rater < 0) & (recs.trial < 0)).any():
+            seen[:] = True
         unexplained = absent & ~seen
     else:
         unexplained = absent
@@ -1014,13 +1042,19 @@ def _trial_column(
         return np.zeros(n, dtype=np.int64)
     T = study.trials
 
+    def whole(u: str) -> str:
+        # a spreadsheet may write the trial as 1.0; the value is still trial 1
+        head, dot, tail = u.partition(".")
+        return head if dot and head and tail and set(tail) == {"0"} else u
+
     def lookup(u: str) -> int:
+        u = whole(u)
         if u.isascii() and u.isdigit() and 1 <= int(u) <= T:
             return int(u) - 1
         return -1
 
     def describe(u: str) -> tuple[str, str | None]:
-        if u.isascii() and u.isdigit():
+        if whole(u).isascii() and whole(u).isdigit():
             return (
                 f"trial {u} is out of range: the study has {T} trial(s)",
                 f"trials are numbered 1 to {T}",
@@ -1457,15 +1491,21 @@ def _reference_from_file(
             ),
         )
     unrated = [j for j, t in enumerate(to_rated) if t < 0]
+    # a spreadsheet that turned the ids into numbers drops leading zeros: '007' becomes '7'
+    unpadded = {n.lstrip("0") or "0": n for n in names if n.isdigit()}
     for j in unrated[:PER_KIND]:
         row = int(np.flatnonzero(item_codes == j)[0])
+        name = ref_names[j]
+        twin = unpadded.get(name.lstrip("0") or "0") if name.isdigit() else None
         problems.add(
             "references for unrated items",
             table.problem(
                 row,
                 item_col,
-                f"reference given for item {ref_names[j]!r}, which has no ratings",
-                "check the item id, or delete the row",
+                f"reference given for item {name!r}, which has no ratings",
+                f"the ratings have item {twin!r}: were leading zeros lost in a spreadsheet? keep item ids as text"
+                if twin is not None and twin != name
+                else "check the item id, or delete the row",
             ),
         )
     problems.count("references for unrated items", len(unrated) - PER_KIND)

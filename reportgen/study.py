@@ -93,9 +93,10 @@ def did_you_mean(word: str, choices: tuple[str, ...] | list[str]) -> str | None:
 class _Reader:
     """Typed access to a :class:`YamlDocument` that records problems instead of raising."""
 
-    def __init__(self, doc: YamlDocument) -> None:
+    def __init__(self, doc: YamlDocument, *, require_inputs: bool = True) -> None:
         self.doc = doc
         self.problems = ProblemCollector(limit=50)
+        self.require_inputs = require_inputs  # False: input files named may not exist yet
 
     # -- plumbing -------------------------------------------------------------------------
     def get(self, keys: KeyPath) -> Any:
@@ -244,6 +245,8 @@ class _Reader:
                 self.error(keys, f"{what} folder not found: {display_path(p)}")
                 return None
             return p
+        if not p.exists() and not self.require_inputs:
+            return p
         if not p.exists():
             self.error(
                 keys,
@@ -267,8 +270,12 @@ def _kind(value: Any) -> str:
     return type(value).__name__
 
 
-def load_study(path: str | os.PathLike[str]) -> Study:
-    """Read and validate a study definition; raise :class:`InputError` listing every problem."""
+def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> Study:
+    """Read and validate a study definition; raise :class:`InputError` listing every problem.
+
+    ``require_inputs=False`` (``reportgen plan``, before the first rating) accepts ratings,
+    reference, key and templates paths that do not exist yet; everything else is checked.
+    """
     doc = read_yaml(path)
     if not isinstance(doc.data, dict):
         raise InputError(
@@ -279,7 +286,7 @@ def load_study(path: str | os.PathLike[str]) -> Study:
                 )
             ]
         )
-    r = _Reader(doc)
+    r = _Reader(doc, require_inputs=require_inputs)
     base = Path(path).resolve().parent
 
     r.mapping((), TOP_KEYS)

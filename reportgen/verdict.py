@@ -1389,6 +1389,14 @@ def _confused_pair(study: Study, results: Mapping[str, Any]) -> list[dict[str, A
                     total += counts[a][b]
                     if a != b:
                         pair[min(a, b)][max(a, b)] += counts[a][b]
+    elif (table := _item_count_table(results.get("items"), codes)) is not None:
+        # the same sums as the loop below, from an items × categories array: pairs of ratings
+        # of different categories a, b on one item = (C^T C)[a, b], all pairs = m (m - 1) / 2
+        basis = "pairs of ratings of the same item"
+        m = table.sum(axis=1)
+        total = int((m * (m - 1) // 2).sum())
+        cross = table.T @ table
+        pair = [[int(cross[a, b]) if a < b else 0 for b in range(k)] for a in range(k)]
     else:
         basis = "pairs of ratings of the same item"
         for it in results.get("items") or []:
@@ -1415,12 +1423,40 @@ def _confused_pair(study: Study, results: Mapping[str, Any]) -> list[dict[str, A
                     {"categories": [ca, cb], "count": n, "of": total, "basis": basis})]
 
 
+def _item_count_table(items: Any, codes: Sequence[str]) -> Any:
+    """The items' ``counts`` as an items × categories int64 array (a category absent from a
+    record counts 0), or None unless every item is a plain dict whose ``counts`` is a plain dict
+    of integers small enough for exact int64 sums (the caller then walks the records)."""
+    import operator
+
+    import numpy as np
+
+    if not isinstance(items, list) or not items or set(map(type, items)) != {dict}:
+        return None
+    counts = [it.get("counts") for it in items]
+    if set(map(type, counts)) != {dict}:
+        return None
+    get = operator.itemgetter(*codes)
+    try:
+        rows = list(map(get, counts))
+    except KeyError:
+        rows = [tuple(c.get(code, 0) for code in codes) for c in counts]
+    table = np.array(rows)  # Python ints only give int64; None, floats or text do not
+    if table.dtype != np.int64 or table.shape != (len(items), len(codes)):
+        return None
+    bound = int(np.abs(table).max())
+    if (bound * len(codes)) ** 2 * len(items) >= 2**62:  # m (m - 1) and C^T C stay exact
+        return None
+    return table
+
+
 def _item_index(results: Mapping[str, Any]) -> dict[str, Mapping[str, Any]]:
-    out = {}
-    for it in results.get("items") or []:
-        if isinstance(it, Mapping) and "id" in it:
-            out[str(it["id"])] = it
-    return out
+    # type() first: isinstance against the Mapping ABC is slow over 100,000 records
+    return {
+        str(it["id"]): it
+        for it in results.get("items") or []
+        if (type(it) is dict or isinstance(it, Mapping)) and "id" in it
+    }
 
 
 def _hard_items(study: Study, results: Mapping[str, Any]) -> list[dict[str, Any]]:
@@ -1445,19 +1481,22 @@ def _hard_items(study: Study, results: Mapping[str, Any]) -> list[dict[str, Any]
 
 def _few_borderline(study: Study, results: Mapping[str, Any]) -> list[dict[str, Any]]:
     index = _item_index(results)
-    judged = [it for it in index.values() if isinstance(it.get("ratings"), int) and it["ratings"] >= 2]
-    if len(judged) < 2:
+    # one flag per item rated at least twice: whether it drew any disagreement
+    drew = [it.get("all_agree") is False or it.get("matches_reference") is False
+            for it in index.values() if isinstance(r := it.get("ratings"), int) and r >= 2]
+    n_judged = len(drew)
+    if n_judged < 2:
         return []
-    split = sum(it.get("all_agree") is False or it.get("matches_reference") is False for it in judged)
-    share = split / len(judged)
+    split = sum(drew)
+    share = split / n_judged
     if share >= BORDERLINE_SHARE:
         return []
-    text = (f"Only {split} of {len(judged)} items ({_pct(round(share, 3))}) drew any disagreement: "
+    text = (f"Only {split} of {n_judged} items ({_pct(round(share, 3))}) drew any disagreement: "
             f"the item set has few borderline items, so it says little about the hard calls. "
             f"Next time include more items close to the category boundaries (at least "
             f"{_pct(BORDERLINE_SHARE)} of the items is common practice, no source).")
     return [_action("few-borderline", "item set", text, BORDERLINE_SHARE - share,
-                    {"items_with_disagreement": split, "items": len(judged), "share": share})]
+                    {"items_with_disagreement": split, "items": n_judged, "share": share})]
 
 
 def _more_items(study: Study, results: Mapping[str, Any], checks: Sequence[Mapping[str, Any]]) -> list[dict[str, Any]]:

@@ -130,3 +130,54 @@ def test_init_under_a_file_is_bad_usage_not_an_internal_error(run_cli, tmp_path:
     assert code == 2
     assert "cannot write the study here" in err and "notes.txt is a file, not a folder" in err
     assert blocker.read_text() == "keep me\n"
+
+
+def test_lost_leading_zeros_are_named_in_the_hint(make_study) -> None:
+    """Found with an .xlsx whose item column Excel had turned into numbers: the reference's
+    '007' met the ratings' '7'; the message now says what probably happened."""
+    ref = [(f"{i:03d}", c) for i, c in zip(range(1, 31), ["P", "S", "X"] * 10, strict=True)]
+    rows = default_ratings([(str(int(i)), c) for i, c in ref], ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    with pytest.raises(InputError) as exc:
+        load_ratings(load_study(make_study(ratings_rows=rows, reference_rows=ref)))
+    first = exc.value.problems()[0]
+    assert (first.location.line, first.message) == (2, "reference given for item '001', which has no ratings")
+    assert first.hint == "the ratings have item '1': were leading zeros lost in a spreadsheet? keep item ids as text"
+
+
+def test_an_unclosed_quote_names_the_line_where_it_opens(make_study) -> None:
+    """Defect: a stray quote in a comment column was reported at the last line of the file."""
+    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    lines = ["item,rater,trial,rating,comment"] + [f"{i},{r},{t},{c}," for i, r, t, c in rows]
+    lines[7] += '"edge chipped'  # line 8 of the file
+    with pytest.raises(InputError) as exc:
+        load_ratings(load_study(make_study(ratings_text="\n".join(lines) + "\n")))
+    [p] = exc.value.problems()
+    assert p.location.line == 8
+    assert p.message.startswith("a quoted field starts on this line and is never closed")
+
+
+def test_trial_written_as_a_whole_float_is_that_trial(make_study) -> None:
+    """Found with a CSV written from a spreadsheet column of numbers: trial '1.0' was refused."""
+    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    text = "item,rater,trial,rating\n" + "".join(f"{i},{r},{t}.0,{c}\n" for i, r, t, c in rows)
+    plain = load_ratings(load_study(make_study(ratings_rows=rows)))
+    floats = load_ratings(load_study(make_study(Path(make_study()).parent.parent / "f", ratings_text=text)))
+    assert (floats.codes == plain.codes).all()
+
+
+def test_a_row_that_cannot_be_placed_is_not_also_reported_as_absent_ratings(make_study) -> None:
+    """Defect: one bad trial cell ('x') gave its own error plus 'no rating for item … trial 1'
+    for the cell that row stood for; a bad trial column gave one error per rater and trial on top."""
+    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    lines = [f"{i},{r},{t},{c}" for i, r, t, c in rows]
+    lines[2] = lines[2].replace(",1,", ",x,")  # item I03, R1: trial unreadable
+    lines[4] = lines[4].replace(",R1,", ",R7,")  # undeclared rater
+    del lines[9]  # item I10, R1, trial 1: really absent
+    with pytest.raises(InputError) as exc:
+        load_ratings(load_study(make_study(ratings_text="item,rater,trial,rating\n" + "\n".join(lines) + "\n")))
+    got = [(p.location.line, p.message) for p in exc.value.problems()]
+    assert got == [
+        (4, "trial must be a whole number from 1 to 2, got 'x'"),
+        (6, "undeclared rater 'R7'"),
+        (None, "no rating for item 'I10' by rater R1 in trial 1"),
+    ]

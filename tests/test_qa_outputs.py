@@ -142,3 +142,24 @@ def test_sign_wrong_passphrase_prints_no_traceback(tmp_path: Path) -> None:
         "  hint: check the passphrase",
     ]
     assert not (tmp_path / "report-signed.pdf").exists()
+
+
+# -- archive: the folder must still be the one build wrote ------------------------------------
+
+
+def test_archive_refuses_a_results_json_changed_after_build(tmp_path: Path) -> None:
+    """Defect: a results.json edited after build (verdict IMPROVE turned PASS) was archived, and
+    the index, register and history then showed the edited verdict."""
+    import json
+
+    rev = make_revision(tmp_path / "output", "SEAL-CHECK", 1, verdict="IMPROVE")
+    data = json.loads((rev / "results.json").read_text())
+    data["verdict"]["outcome"] = "PASS"
+    (rev / "results.json").write_text(json.dumps(data, indent=2) + "\n")
+    root = tmp_path / "archive"
+    with pytest.raises(InputError) as exc:
+        archive_revision(rev, archive_dir=root, now=NOW)
+    p = exc.value.problems()[0]
+    assert p.location.path == str(rev / "results.json")
+    assert p.message.startswith("differs from the results.json attached to the report PDF")
+    assert not (root / "SEAL-CHECK").exists()

@@ -112,10 +112,11 @@ def command(
     target = revision_dir(output, study)
     refuse_archive_target(target)
     if target.exists():
-        from ..render.build import foreign_files, write_folder
+        from ..render.build import refuse_foreign_files, write_folder
 
-        if not replace or foreign_files(target):
-            write_folder(target, {}, replace=replace)  # raises ExistsError
+        if not replace:
+            write_folder(target, {}, replace=False)  # raises ExistsError
+        refuse_foreign_files(target)
     progress("reading ratings")
     ratings = load_ratings(study)
     results = compute_results(study, ratings, progress=progress)

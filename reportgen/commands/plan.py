@@ -110,7 +110,7 @@ def command(
     from ..plan import load_items, make_plan, plan_settings, summary_text, write_plan
     from ..study import load_study
 
-    study = load_study(study_file)
+    study = load_study(study_file, require_inputs=False)  # planned before the first rating
     progress = _progress(quiet)
     items = load_items(items_file, study) if items_file is not None else None
     settings = plan_settings(study, seed=seed, start=start.date() if start else None)

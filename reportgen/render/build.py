@@ -54,6 +54,9 @@ class RenderedReport:
 
 def resolve_generated_at(value: dt.datetime | str | None) -> dt.datetime:
     """The build time: the given value, else ``SOURCE_DATE_EPOCH``, else now; UTC, whole seconds."""
+    from .charts import check_source_date_epoch
+
+    check_source_date_epoch()
     if isinstance(value, str):
         text = value.strip().replace("Z", "+00:00")
         try:
@@ -243,6 +246,16 @@ def refuse_archive_target(target: Path) -> None:
         )
 
 
+def refuse_foreign_files(target: Path) -> None:
+    """Raise ExistsError when the revision folder ``target`` holds files ``build`` does not write
+    (a signed copy, notes): ``--replace`` would delete them with the folder."""
+    if target.is_dir() and (extra := foreign_files(target)):
+        raise ExistsError(
+            f"{target} holds files that build did not write ({', '.join(extra)}); --replace would "
+            "delete them: move them elsewhere first, or raise study.revision"
+        )
+
+
 def foreign_files(target: Path) -> list[str]:
     """Files in an existing revision folder that ``build`` does not write (a signed copy, notes …)."""
     stem = f"{target.parent.name}-{target.name}"
@@ -263,11 +276,6 @@ def write_folder(target: Path, files: Mapping[str, bytes], *, replace: bool = Fa
         raise ExistsError(
             f"{target} already exists: a built revision is never overwritten; "
             "raise study.revision in the study definition, or pass --replace for a draft"
-        )
-    if target.exists() and (extra := foreign_files(target)):
-        raise ExistsError(
-            f"{target} holds files that build did not write ({', '.join(extra)}); --replace would "
-            "delete them: move them elsewhere first, or raise study.revision"
         )
     _clean_stale(parent, target.name)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".part", dir=parent))
@@ -345,8 +353,7 @@ def build_report(
     refuse_archive_target(target)
     if target.exists() and not replace:
         write_folder(target, {}, replace=False)  # raises ExistsError with the message
-    if target.exists() and foreign_files(target):
-        write_folder(target, {}, replace=True)  # raises ExistsError naming the files
+    refuse_foreign_files(target)
     when = resolve_generated_at(generated_at)
     say = progress or (lambda _m: None)
     if ratings is None:
@@ -366,4 +373,5 @@ def build_report(
         plan=plan,
     )
     say("writing")
+    refuse_foreign_files(target)  # again: a file may have been put there while rendering
     return write_folder(target, rendered.files(), replace=replace)

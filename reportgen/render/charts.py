@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import base64
 import io
+import os
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -83,7 +84,22 @@ def _plt() -> Any:
     return plt
 
 
+def check_source_date_epoch() -> None:
+    """``SOURCE_DATE_EPOCH``, when set, must be whole seconds: matplotlib reads it too, and
+    stops with a bare ValueError otherwise."""
+    value = os.environ.get("SOURCE_DATE_EPOCH")
+    if value is not None and value.strip() and not value.strip().isdigit():
+        from ..errors import InputError
+
+        raise InputError.single(
+            "SOURCE_DATE_EPOCH",
+            f"must be a whole number of seconds since 1970-01-01 UTC, got {value!r}",
+            hint="unset it, or set it to whole seconds such as 1795165200 (2026-11-20T09:00:00Z)",
+        )
+
+
 def _style(plt: Any, name: str) -> None:
+    check_source_date_epoch()
     rc = plt.rcParams
     rc["svg.hashsalt"] = f"reportgen-{name}"
     rc["svg.fonttype"] = "path"
@@ -116,11 +132,31 @@ def _register_fonts() -> None:
 
     from .environment import builtin_template_dir
 
+    shipped: set[str] = set()
     for name in ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf", "DroidSansFallback.ttf"):
         path = builtin_template_dir() / "fonts" / name
         if path.is_file():
             font_manager.fontManager.addfont(str(path))
+            shipped.add(os.path.realpath(path))
+    # A font of the same family installed on the machine (Debian's DroidSansFallbackFull.ttf
+    # lacks Hangul; matplotlib's own DejaVu may be another version) must not be chosen instead:
+    # charts would then depend on the machine and miss glyphs the shipped font has.
+    fm = font_manager.fontManager
+    families = {e.name for e in fm.ttflist if os.path.realpath(e.fname) in shipped}
+    fm.ttflist = [e for e in fm.ttflist if e.name not in families or os.path.realpath(e.fname) in shipped]
+    font_manager.FontManager._findfont_cached.cache_clear()  # type: ignore[attr-defined]
+    font_manager._get_font.cache_clear()  # type: ignore[attr-defined]
     _FONTS_DONE = True
+
+
+def _tight(fig: Any, **kw: Any) -> None:
+    """``fig.tight_layout`` without its warning when long names leave it no room (the figure is
+    then kept as laid out; the warning would only reach the user's terminal)."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message="Tight layout not applied", category=UserWarning)
+        fig.tight_layout(**kw)
 
 
 def _svg(fig: Any) -> bytes:
@@ -228,7 +264,7 @@ def interval_panels(
         ax.set_title(_short(ptitle, 34), fontsize=8.5, loc="left")
         ax.grid(axis="x", color="#c4c9cf", lw=0.4, zorder=0)
         ax.set_axisbelow(True)
-    fig.tight_layout(w_pad=0.8)
+    _tight(fig, w_pad=0.8)
     return Chart(name, _svg(fig), title, alt, note)
 
 
@@ -293,7 +329,7 @@ def confusion_maps(
             ax.set_ylabel("reference")
         if idx // cols == rows - 1:
             ax.set_xlabel("rated as")
-    fig.tight_layout()
+    _tight(fig)
     return Chart(name, _svg(fig), title, alt, note)
 
 
@@ -338,7 +374,7 @@ def steps_apart(
     ax.legend(frameon=False, fontsize=7, ncol=min(n, 4), loc="upper left")
     ax.grid(axis="y", color="#c4c9cf", lw=0.4)
     ax.set_axisbelow(True)
-    fig.tight_layout()
+    _tight(fig)
     return Chart(name, _svg(fig), title, alt, note)
 
 
@@ -444,7 +480,7 @@ def item_map(
     ax.legend(
         handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=6.5
     )
-    fig.tight_layout()
+    _tight(fig)
     return Chart(name, _svg(fig), title, alt, note)
 
 

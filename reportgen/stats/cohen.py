@@ -28,6 +28,7 @@ tables (test-only cross-checks).
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import math
 
@@ -35,6 +36,7 @@ import numpy as np
 
 from .proportion import _confidence_level_iv, clopper_pearson_interval, normal_quantile
 from .results import Estimate
+from .tables import _ones
 from .weights import agreement_weights
 
 _CI_METHOD = "analytic (Fleiss-Cohen-Everitt 1969)"
@@ -187,9 +189,9 @@ def _kappa_parts(
         to_rows, to_cols = _margin_maps(k)
         rows = (flat @ to_rows).reshape(tables.shape[:-1])
         cols = (flat @ to_cols).reshape(tables.shape[:-1])
-        n = rows @ np.ones(k)
+        n = rows @ _ones(k)
         observed = (flat @ d.reshape(-1)).reshape(tables.shape[:-2])
-        expected = ((rows @ d) * cols) @ np.ones(k)
+        expected = ((rows @ d) * cols) @ _ones(k)
     else:
         rows = tables.sum(axis=-1)
         cols = tables.sum(axis=-2)
@@ -267,10 +269,122 @@ def cohen_kappa(
 
 
 def _cohen_estimates(tables: np.ndarray, w: np.ndarray, level: float) -> list[Estimate]:
-    """:func:`cohen_kappa` for each of a stack (m, k, k) of validated tables (a loop over
-    tables, e.g. rater pairs; never over items)."""
+    """:func:`cohen_kappa` for each of a stack (m, k, k) of validated tables (e.g. rater pairs;
+    never a loop over items).
+
+    The kappas and their FCE (1969) variances are computed for the whole stack at once (the
+    same formulas as :func:`_cohen_estimate`); only the records are built one table at a time.
+    Tables where kappa is undefined go through :func:`_cohen_estimate` for its messages.
+    """
     weighted = not _is_identity(w)
-    return [_cohen_estimate(t, w, level, weighted=weighted) for t in tables]
+    m_tables, k = tables.shape[0], w.shape[0]
+    if m_tables == 0:
+        return []
+    # Every table at once, as small 2-D matrix products over the flattened (m, k²) stack (numpy
+    # reduces over short trailing axes slowly); the counts' sums are exact either way.
+    flat = tables.reshape(m_tables, k * k)
+    to_rows, to_cols = _margin_maps(k)
+    rows_n = flat @ to_rows
+    cols_n = flat @ to_cols
+    n_arr = rows_n @ _ones(k)
+    d = 1.0 - w
+    observed = flat @ d.reshape(-1)  # n · (1 − p_o)
+    expected = ((rows_n @ d) * cols_n) @ _ones(k)  # n² · (1 − p_e)
+    n_list = n_arr.tolist()
+    exp_list = expected.tolist()
+    # empty tables or chance agreement 1 give NaN here; those records come from _cohen_estimate
+    quiet = min(n_list) > 0 and min(exp_list) > 0
+    with contextlib.nullcontext() if quiet else np.errstate(divide="ignore", invalid="ignore"):
+        kappa_arr = 1.0 - n_arr * observed / expected
+        n_b = n_arr[:, None]
+        p = flat / n_b
+        rows = rows_n / n_b
+        cols = cols_n / n_b
+        w_row = cols @ w  # w̄_i. = Σ_j w_ij p_.j (w is symmetric)
+        w_col = rows @ w  # w̄_.j = Σ_i w_ij p_i.
+        ones_kk = _ones(k * k)
+        p_o = p @ w.reshape(-1)
+        p_e = (rows * w_row) @ _ones(k)
+        marg = (w_row[:, :, None] + w_col[:, None, :]).reshape(m_tables, k * k)
+        w_flat = w.reshape(-1)
+        q = 1.0 - p_e
+        scale = n_arr * q * q
+        dev = w_flat - marg * (1.0 - kappa_arr)[:, None]
+        var = ((p * dev * dev) @ ones_kk - (kappa_arr - p_e * (1.0 - kappa_arr)) ** 2) / scale
+        dev0 = w_flat - marg
+        outer = (rows[:, :, None] * cols[:, None, :]).reshape(m_tables, k * k)
+        var0 = ((outer * dev0 * dev0) @ ones_kk - p_e * p_e) / scale
+        diag_min = np.minimum(rows_n, cols_n) @ _ones(k)
+    agreeing = (flat[:, :: k + 1] @ _ones(k)).tolist()
+    label = "Weighted kappa" if weighted else "Cohen's kappa"
+    zq = normal_quantile(level)
+    out = []
+    for i, (kappa, n_f, exp_f, po, pe, v, v0, dmin) in enumerate(zip(
+        kappa_arr.tolist(), n_list, exp_list, p_o.tolist(), p_e.tolist(), var.tolist(),
+        var0.tolist(), diag_min.tolist(), strict=True,
+    )):
+        if int(n_f) == 0 or not exp_f > 0.0:
+            out.append(_cohen_estimate(tables[i], w, level, weighted=weighted))
+            continue
+        se = math.sqrt(max(v, 0.0))
+        se0 = math.sqrt(max(v0, 0.0))
+        kmax = None if weighted else 1.0 - n_f * (n_f - dmin) / exp_f
+        out.append(_cohen_record(kappa, se, se0, po, pe, kmax, int(n_f), int(agreeing[i]),
+                                 label, weighted, level, zq))
+    return out
+
+
+def _cohen_record(
+    kappa: float,
+    se: float,
+    se0: float,
+    p_o: float,
+    p_e: float,
+    kmax: float | None,
+    n: int,
+    agreeing: int,
+    label: str,
+    weighted: bool,
+    level: float,
+    zq: float,
+) -> Estimate:
+    """The :class:`Estimate` of a defined kappa: test from ``se0``, interval from ``se``."""
+    warnings: list[str] = []
+    z: float | None = None
+    p_value: float | None = None
+    if se0 > 0.0:
+        z = kappa / se0
+        p_value = math.erfc(abs(z) / math.sqrt(2.0))
+    else:
+        warnings.append(f"No test of {label} = 0: its null standard error is zero for these data.")
+    ci_low: float | None = None
+    ci_high: float | None = None
+    if se > 0.0:
+        half = zq * se
+        ci_low, ci_high = kappa - half, kappa + half
+        if ci_low < -1.0 or ci_high > 1.0:
+            warnings.append(f"The analytic interval of {label} was cut to the range -1 to 1.")
+            ci_low, ci_high = max(ci_low, -1.0), min(ci_high, 1.0)
+    else:
+        warnings.append(
+            f"No analytic interval for {label}: its standard error is zero for these data "
+            "(for example perfect agreement); the large-sample interval does not apply."
+        )
+    return Estimate(
+        estimate=kappa,
+        se=se,
+        ci_low=ci_low,
+        ci_high=ci_high,
+        ci_method=_CI_METHOD,
+        confidence_level=level,
+        z=z,
+        p_value=p_value,
+        items=n,
+        agreeing=agreeing,
+        warnings=tuple(warnings),
+        extra={"weighted": weighted, "p_o": p_o, "p_e": p_e, "se_null": se0, "z": z,
+               "kappa_max": kmax},
+    )
 
 
 def _cohen_estimate(

@@ -50,8 +50,8 @@ from .tables import (
     _confidence_level_iv,
     _finite_or_none,
     _normal_critical,
+    _ones,
     _two_sided_p,
-    _weighted_var_of_mean,
     as_patterns,
 )
 
@@ -89,16 +89,21 @@ def fleiss_kappa_features(counts: np.ndarray) -> np.ndarray:
     c = np.asarray(counts, dtype=np.float64)
     if c.ndim != 2:
         raise ValueError(f"counts must be an items × categories table, got shape {c.shape}")
-    m = c.sum(axis=1)
+    return _features(c, c.sum(axis=1))
+
+
+def _features(c: np.ndarray, m: np.ndarray, inv_pairs: np.ndarray | None = None) -> np.ndarray:
+    """:func:`fleiss_kappa_features` of a float table ``c`` with row sums ``m`` (and, when every
+    row has two or more ratings, optionally ``1 / (m (m - 1))``)."""
     k = c.shape[1]
     out = np.empty((c.shape[0], 3 + 2 * k), dtype=np.float64)
     if c.shape[0] and m.min() >= 2:  # fast path: every item has two or more ratings
-        inv_pairs = (1.0 / (m * (m - 1.0)))[:, None]
-        out[:, 0] = 1.0
-        out[:, 2] = 1.0
+        if inv_pairs is None:
+            inv_pairs = 1.0 / (m * (m - 1.0))
+        out[:, 0:3:2] = 1.0
         np.divide(c, m[:, None], out=out[:, 3 : 3 + k])
-        np.multiply(c * (m[:, None] - c), inv_pairs, out=out[:, 3 + k :])
-        out[:, 1] = 1.0 - out[:, 3 + k :].sum(axis=1)  # a_i = 1 - sum_j d_ij
+        np.multiply(c * (m[:, None] - c), inv_pairs[:, None], out=out[:, 3 + k :])
+        out[:, 1] = 1.0 - out[:, 3 + k :] @ _ones(k)  # a_i = 1 - sum_j d_ij
         return out
     pairable = m >= 2
     rated = m >= 1
@@ -129,13 +134,13 @@ def fleiss_kappa_from_sums(sums: np.ndarray) -> np.ndarray:
     """
     e, a, u, pi_sum, _ = _split(sums)
     if pi_sum.ndim == 1:  # one study: plain float arithmetic, same formula
-        if e <= 0 or u <= 0:
+        e1, a1, u1 = float(e), float(a), float(u)
+        if e1 <= 0 or u1 <= 0:
             return np.float64(np.nan)
-        pi1 = pi_sum / u
-        pe1 = float(pi1 @ pi1)
+        pe1 = sum((x / u1) * (x / u1) for x in pi_sum.tolist())
         if 1.0 - pe1 <= _TINY:
             return np.float64(np.nan)
-        return np.float64((float(a) / float(e) - pe1) / (1.0 - pe1))
+        return np.float64((a1 / e1 - pe1) / (1.0 - pe1))
     with np.errstate(divide="ignore", invalid="ignore"):
         pa = a / e
         pi = pi_sum / u[..., None]
@@ -151,15 +156,16 @@ def fleiss_kappa_by_category_from_sums(sums: np.ndarray) -> np.ndarray:
     collapsed two-category table.
     """
     e, _, u, pi_sum, d = _split(sums)
-    if pi_sum.ndim == 1:  # one study
-        if e <= 0 or u <= 0:
+    if pi_sum.ndim == 1:  # one study: plain float arithmetic, same formula
+        e1, u1 = float(e), float(u)
+        if e1 <= 0 or u1 <= 0:
             return np.full(pi_sum.shape, np.nan)
-        pi1 = pi_sum / u
-        pq1 = pi1 * (1.0 - pi1)
-        ok = pq1 > _TINY
-        out = np.full(pi_sum.shape, np.nan)
-        np.divide(d / e, pq1, out=out, where=ok)
-        return np.subtract(1.0, out, out=out, where=ok)
+        out1 = []
+        for x, dj in zip(pi_sum.tolist(), d.tolist(), strict=True):
+            p1 = x / u1
+            pq1 = p1 * (1.0 - p1)
+            out1.append(1.0 - (dj / e1) / pq1 if pq1 > _TINY else math.nan)
+        return np.array(out1)
     with np.errstate(divide="ignore", invalid="ignore"):
         pi = pi_sum / u[..., None]
         pq = pi * (1.0 - pi)
@@ -232,25 +238,31 @@ def fleiss_kappa(
         names = tuple(str(x) for x in labels)
         if len(names) != k:
             raise ValueError(f"labels must name each of the {k} categories, got {len(names)}")
-    m = rows.sum(axis=1)
-    feats = fleiss_kappa_features(rows)
+    m = rows @ _ones(k)  # ratings per pattern (exact: whole numbers)
+    everyone_pairable = bool(m.min() >= 2) and w.min() > 0
+    inv_pairs = 1.0 / (m * (m - 1.0)) if everyone_pairable else None
+    feats = _features(rows, m, inv_pairs)
     sums = w @ feats
     kappa = float(fleiss_kappa_from_sums(sums))
-    kappa_j = fleiss_kappa_by_category_from_sums(sums)
+    kappa_j = fleiss_kappa_by_category_from_sums(sums).tolist()
+    # Small vectors (one entry per category) are handled as Python floats: a numpy call on a
+    # handful of numbers costs far more than the arithmetic.
+    s_list = sums.tolist()
 
-    n_pairable = int(sums[0])
-    n_rated = int(sums[2])
-    everyone_pairable = n_pairable == rows.shape[0] and w.min() > 0
+    n_pairable = int(s_list[0])
+    n_rated = int(s_list[2])
     if everyone_pairable:
         n_unrated = n_single = 0
     else:
         n_unrated = int(w[m == 0].sum())
         n_single = int(w[m == 1].sum())
     n_ratings = int(w @ m)
-    all_alike = int(w @ ((m >= 2) & (rows.max(axis=1) == m)))
-    pi = sums[3 : 3 + k] / n_rated if n_rated else np.full(k, np.nan)
-    pa = sums[1] / n_pairable if n_pairable else float("nan")
-    pe = float(pi @ pi)
+    # An item's agreement a_i is exactly 1.0 when every rating is alike (and < 1 otherwise; 0
+    # below two ratings), so this counts the items with two or more ratings all alike.
+    all_alike = int(w @ (feats[:, 1] == 1.0))
+    pi = [x / n_rated for x in s_list[3 : 3 + k]] if n_rated else [math.nan] * k
+    pa = s_list[1] / n_pairable if n_pairable else math.nan
+    pe = math.fsum(x * x for x in pi) if n_rated else math.nan
 
     notes: list[str] = []
     if n_unrated:
@@ -266,20 +278,6 @@ def fleiss_kappa(
     elif 1.0 - pe <= _TINY:
         why = "Fleiss' kappa is undefined: every rating is in one category, so chance agreement is 1."
 
-    if everyone_pairable:
-        sum_inv_pairs = float(w @ (1.0 / (m * (m - 1.0))))
-        sum_inv_r_pairable = float(w @ (1.0 / m))
-    else:
-        pair_ok = m >= 2
-        sum_inv_pairs = float(w @ np.where(pair_ok, 1.0 / np.where(pair_ok, m * (m - 1), 1), 0.0))
-        sum_inv_r_pairable = float(w @ np.where(pair_ok, 1.0 / np.maximum(m, 1), 0.0))
-    null_args = {
-        "n_pairable": float(n_pairable),
-        "n_rated": float(n_rated),
-        "sum_inv_pairs": sum_inv_pairs,
-        "sum_inv_r_pairable": sum_inv_r_pairable,
-        "n_single": float(n_single),
-    }
     extra_common = {
         "items_pairable": n_pairable,
         "items_single_rating": n_single,
@@ -303,47 +301,96 @@ def fleiss_kappa(
                                     level_notes, extra_common, names),
         )
 
-    if not everyone_pairable:  # items without ratings take no part in the variance
-        keep = m >= 1
-        feats, w, m = feats[keep], w[keep], m[keep]
-    e_i = feats[:, 0]
-    pi_i = feats[:, 3 : 3 + k]
-    d_i = feats[:, 3 + k :]
-    # Overall: Gwet's linearised variance over the rated items (patterns weighted).
-    var0 = float(fnl_null_variance(pi, **null_args))
-    pe_i = pi_i @ pi
-    kstar = (n_rated / n_pairable) * (feats[:, 1] - pe * e_i) / (1.0 - pe) - 2.0 * (
-        1.0 - kappa
-    ) * (pe_i - pe) / (1.0 - pe)
-    var = _weighted_var_of_mean(kstar, w, kappa, n_rated)
+    if inv_pairs is not None:
+        sum_inv_pairs = float(w @ inv_pairs)
+        sum_inv_r_pairable = float(w @ (1.0 / m))
+    else:
+        pair_ok = m >= 2
+        sum_inv_pairs = float(w @ np.where(pair_ok, 1.0 / np.where(pair_ok, m * (m - 1), 1), 0.0))
+        sum_inv_r_pairable = float(w @ np.where(pair_ok, 1.0 / np.maximum(m, 1), 0.0))
+        keep = m >= 1  # items without ratings take no part in the variance
+        feats, w = feats[keep], w[keep]
+    null_args = (float(n_pairable), float(n_rated), sum_inv_pairs, sum_inv_r_pairable,
+                 float(n_single))
+    # Gwet's linearised variances, overall and per category, in one pass.  Each item's
+    # linearised value kappa*_i is linear in its feature row [e_i, a_i, u_i, pi_ij.., d_ij..]:
+    # kappa*_i = feats_i @ coef + const, so one small matrix product gives every column.
+    #   overall:  kappa*_i = R (a_i - pe e_i) / (1 - pe) - 2 (1 - kappa)(pe_i - pe) / (1 - pe),
+    #             pe_i = sum_j pi_ij pi_j, R = n_rated / n_pairable;
+    #   category j (the collapsed "j versus not j" table, item agreement e_i - 2 d_ij, chance
+    #   agreement pe_j = p_j^2 + q_j^2, pe_ij = q_j + pi_ij (p_j - q_j)):
+    #             kappa*_ij = R (e_i - 2 d_ij - pe_j e_i) / (1 - pe_j)
+    #                         - 2 (1 - kappa_j)(pe_ij - pe_j) / (1 - pe_j).
+    ratio = n_rated / n_pairable
+    coef = np.zeros((3 + 2 * k, 1 + k))
+    shift = [0.0] * (1 + k)
+    a_scale = ratio / (1.0 - pe)
+    b_scale = 2.0 * (1.0 - kappa) / (1.0 - pe)
+    coef[0, 0] = -a_scale * pe
+    coef[1, 0] = a_scale
+    coef[3 : 3 + k, 0] = [-b_scale * p for p in pi]
+    shift[0] = b_scale * pe - kappa
+    defined = [False] * k
+    for j, (p, kj) in enumerate(zip(pi, kappa_j, strict=True)):
+        if not math.isfinite(kj):
+            continue
+        q = 1.0 - p
+        pe_j = p * p + q * q
+        if not 1.0 - pe_j > 0.0:
+            continue
+        defined[j] = True
+        inv = 1.0 / (1.0 - pe_j)
+        bj = 2.0 * (1.0 - kj) * inv
+        coef[0, 1 + j] = ratio * (1.0 - pe_j) * inv
+        coef[3 + j, 1 + j] = -bj * (p - q)
+        coef[3 + k + j, 1 + j] = -2.0 * ratio * inv
+        shift[1 + j] = -bj * (q - pe_j) - kj
+    dev = feats @ coef
+    dev += np.array(shift)
+    if n_rated >= 2:
+        var_all = ((w @ (dev * dev)) / (n_rated * (n_rated - 1.0))).tolist()
+    else:
+        var_all = [math.nan] * (1 + k)
+
+    var0 = _fnl_null_variance_one(pi, *null_args)
     overall = _estimate(
-        kappa, var, var0, zc, level, n_rated, all_alike, level_notes,
-        {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi.tolist()},
+        kappa, var_all[0], var0, zc, level, n_rated, all_alike, level_notes,
+        {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi},
         "Fleiss' kappa",
     )
-    # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table, whose
-    # item agreement is 1 - 2 d_ij and chance agreement p_j^2 + q_j^2.
-    qi = 1.0 - pi
-    var0_j = fnl_null_variance(np.stack([pi, qi], axis=-1), **null_args)
-    pe_j = pi * pi + qi * qi
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = 1.0 / (1.0 - pe_j)
-        a_ij = e_i[:, None] - 2.0 * d_i
-        pe_ij = qi + pi_i * (pi - qi)
-        kstar_j = (n_rated / n_pairable) * (a_ij - pe_j * e_i[:, None]) * inv - (
-            2.0 * (1.0 - kappa_j) * (pe_ij - pe_j) * inv
-        )
-        var_j = (w @ (kstar_j - kappa_j) ** 2) / (n_rated * (n_rated - 1.0))
+    var_j = [v if ok else math.nan for v, ok in zip(var_all[1:], defined, strict=True)]
+    var0_j = [_fnl_null_variance_one([p, 1.0 - p], *null_args) for p in pi]
     by_cat = _categories(kappa_j, pi, var_j, var0_j, n_pairable, n_rated, zc, level,
                          level_notes, extra_common, names)
     return FleissResult(overall=overall, by_category=by_cat)
 
 
+def _fnl_null_variance_one(
+    p: list[float],
+    n_pairable: float,
+    n_rated: float,
+    sum_inv_pairs: float,
+    sum_inv_r_pairable: float,
+    n_single: float,
+) -> float:
+    """:func:`fnl_null_variance` for one vector of proportions, in Python floats."""
+    pq = sum(x * (1.0 - x) for x in p)
+    v2 = pq * pq - sum(x * (1.0 - x) * ((1.0 - x) - x) for x in p)
+    zeta1 = sum(x**3 for x in p) - sum(x * x for x in p) ** 2
+    if n_pairable <= 0 or n_rated <= 0 or not pq > 0:
+        return math.nan
+    deg = 2.0 * v2 * (sum_inv_pairs / n_pairable**2)
+    lin = 4.0 * zeta1 * (
+        (1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2
+    )
+    return (deg + lin) / pq**2
+
+
 def _categories(
-    kappa_j: np.ndarray,
-    pi: np.ndarray,
-    var_j: np.ndarray | None,
-    var0_j: np.ndarray | None,
+    kappa_j: list[float],
+    pi: list[float],
+    var_j: list[float] | None,
+    var0_j: list[float] | None,
     n_pairable: int,
     n_rated: int,
     zc: float,
@@ -353,12 +400,12 @@ def _categories(
     names: tuple[str, ...],
 ) -> tuple[Estimate, ...]:
     out = []
-    for j in range(kappa_j.shape[0]):
+    for j in range(len(kappa_j)):
         cat = names[j]
         value = float(kappa_j[j])
         pj = float(pi[j]) if n_rated else float("nan")
         extra = {**extra_common, "category": j, "proportion": _finite_or_none(pj)}
-        if not np.isfinite(value) or var_j is None or var0_j is None:
+        if not math.isfinite(value) or var_j is None or var0_j is None:
             if n_pairable == 0:
                 why = f"Fleiss' kappa for category {cat} is undefined: no item has two or more ratings."
             elif pj <= 0.0:

@@ -29,6 +29,9 @@ quadratic weights on random studies with missing ratings (tests/stats/test_gwet.
 
 from __future__ import annotations
 
+import math
+from functools import lru_cache
+
 import numpy as np
 
 from .results import Estimate
@@ -37,6 +40,7 @@ from .tables import (
     _confidence_level_iv,
     _finite_or_none,
     _normal_critical,
+    _ones,
     _weighted_var_of_mean,
     as_patterns,
 )
@@ -55,11 +59,17 @@ _TINY = 1e-14
 _METHOD = "analytic (Gwet)"
 
 
+@lru_cache(maxsize=64)
+def _named_weights(k: int, kind: str | None) -> np.ndarray:
+    """Read-only identity (``kind`` None) or named agreement weights, built once per (k, kind)."""
+    w = np.eye(k) if kind is None else agreement_weights(k, kind)  # type: ignore[arg-type]
+    w.flags.writeable = False
+    return w
+
+
 def _weights_iv(weights: np.ndarray | str | None, k: int) -> np.ndarray:
-    if weights is None:
-        return np.eye(k)
-    if isinstance(weights, str):
-        return agreement_weights(k, weights)  # type: ignore[arg-type]
+    if weights is None or isinstance(weights, str):
+        return _named_weights(k, weights)
     w = np.asarray(weights, dtype=np.float64)
     if w.shape != (k, k):
         raise ValueError(f"weights must have shape ({k}, {k}), got {w.shape}")
@@ -73,11 +83,15 @@ def _agreement_features(counts: np.ndarray, w: np.ndarray) -> np.ndarray:
     c = np.asarray(counts, dtype=np.float64)
     if c.ndim != 2 or c.shape[1] != w.shape[0]:
         raise ValueError(f"counts must be an items × {w.shape[0]} table, got shape {c.shape}")
-    m = c.sum(axis=1)
+    return _features_m(c, w, c.sum(axis=1))
+
+
+def _features_m(c: np.ndarray, w: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """:func:`_agreement_features` of a float table ``c`` with row sums ``m``."""
     out = np.empty((c.shape[0], 3 + c.shape[1]), dtype=np.float64)
     if c.shape[0] and m.min() >= 2:  # fast path: every item has two or more ratings
         out[:, 0] = 1.0
-        out[:, 1] = (c * (c @ w.T - 1.0)).sum(axis=1) / (m * (m - 1.0))
+        out[:, 1] = ((c * (c @ w.T - 1.0)) @ _ones(c.shape[1])) / (m * (m - 1.0))
         out[:, 2] = 1.0
         np.divide(c, m[:, None], out=out[:, 3:])
         return out
@@ -122,13 +136,13 @@ def _ac_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
         return np.full(s.shape[:-1], np.nan)
     e, a, u, pi_sum = s[..., 0], s[..., 1], s[..., 2], s[..., 3:]
     if s.ndim == 1:  # one study: plain float arithmetic, same formula
-        if e <= 0 or u <= 0:
+        e1, a1, u1, *pi_list = s.tolist()
+        if e1 <= 0 or u1 <= 0:
             return np.float64(np.nan)
-        pi1 = pi_sum / u
-        pe1 = float(w.sum()) / (k * (k - 1)) * float(pi1 @ (1.0 - pi1))
+        pe1 = float(w.sum()) / (k * (k - 1)) * sum((x / u1) * (1.0 - x / u1) for x in pi_list)
         if 1.0 - pe1 <= _TINY:
             return np.float64(np.nan)
-        return np.float64((float(a) / float(e) - pe1) / (1.0 - pe1))
+        return np.float64((a1 / e1 - pe1) / (1.0 - pe1))
     with np.errstate(divide="ignore", invalid="ignore"):
         pa = a / e
         pi = pi_sum / u[..., None]
@@ -178,9 +192,12 @@ def _common(
     pat = as_patterns(counts)
     rows = pat.rows.astype(np.float64)
     mult = pat.multiplicity.astype(np.float64)
-    w = _weights_iv(weights, rows.shape[1])
-    feats = _agreement_features(rows, w)
-    m = rows.sum(axis=1)
+    k = rows.shape[1]
+    w = _weights_iv(weights, k)
+    if w.shape != (k, k):
+        raise ValueError(f"counts must be an items × {w.shape[0]} table, got shape {rows.shape}")
+    m = rows @ _ones(k)  # ratings per pattern (exact: whole numbers)
+    feats = _features_m(rows, w, m)
     if m.min() >= 2:
         n_unrated = n_single = 0
     else:
@@ -195,7 +212,7 @@ def _common(
             "proportions but cannot show agreement (Gwet 2014)."
         )
     counts_info = {
-        "items_pairable": int(mult @ feats[:, 0]),
+        "items_pairable": -1,  # filled in from the sums by the caller
         "items_single_rating": n_single,
         "items_unrated": n_unrated,
         "ratings": int(mult @ m),
@@ -230,9 +247,9 @@ def _finish(
         )
     var = _weighted_var_of_mean(cstar, mult, value, n_rated)
     warnings = list(notes)
-    se = float(np.sqrt(var)) if np.isfinite(var) and var >= 0 else float("nan")
+    se = math.sqrt(var) if math.isfinite(var) and var >= 0 else math.nan
     lo = hi = None
-    if np.isfinite(se):
+    if math.isfinite(se):
         zc = _normal_critical(level)
         lo, hi = value - zc * se, value + zc * se
         if lo < -1.0 or hi > 1.0:  # the coefficient lies in -1 .. 1; a normal interval may not
@@ -273,11 +290,13 @@ def gwet_ac(
     name = "Gwet's AC1" if weights is None else "Gwet's AC2"
     sums = mult @ feats
     value = float(_ac_from_sums(sums, w))
-    n2, n_rated = sums[0], int(sums[2])
-    pi = sums[3:] / n_rated if n_rated else np.full(k, np.nan)
+    s_list = sums.tolist()
+    info["items_pairable"] = int(s_list[0])
+    n2, n_rated = s_list[0], int(s_list[2])
+    pi = [x / n_rated for x in s_list[3:]] if n_rated else [math.nan] * k
     tw = float(w.sum())
-    pe = tw / (k * (k - 1)) * float((pi * (1 - pi)).sum()) if k > 1 else float("nan")
-    pa = float(sums[1] / n2) if n2 else float("nan")
+    pe = tw / (k * (k - 1)) * sum(p * (1 - p) for p in pi) if k > 1 else float("nan")
+    pa = s_list[1] / n2 if n2 else float("nan")
     extra: dict[str, object] = {
         **info, "p_o": _finite_or_none(pa), "p_e": _finite_or_none(pe),
         "finite_population_correction": False,
@@ -287,21 +306,23 @@ def gwet_ac(
         why = f"{name} is undefined: the scale has a single category."
     elif n2 == 0:
         why = f"{name} is undefined: no item has two or more ratings."
-    elif not np.isfinite(value):
+    elif not math.isfinite(value):
         why = f"{name} is undefined: chance agreement is 1."
-    elif np.count_nonzero(pi > 0) == 1:
+    elif sum(p > 0 for p in pi) == 1:
         why = _one_category(name, value, extra)
     if why is not None:
         return _finish(name, value, None, mult, n_rated, level, notes, why, extra)
     if info["items_unrated"]:
         keep = m >= 1
-        rows, m, feats, mult = rows[keep], m[keep], feats[keep], mult[keep]
-    rr, mm = rows, m
-    a_i = feats[:, 1]
-    pe_i = tw / (k * (k - 1)) * (rr @ (1.0 - pi)) / mm
-    cstar = (n_rated / n2) * (a_i - pe * (mm >= 2)) / (1.0 - pe) - 2.0 * (1.0 - value) * (
-        pe_i - pe
-    ) / (1.0 - pe)
+        feats, mult = feats[keep], mult[keep]
+    # c*_i = (n / n_2)(a_i - p_e e_i) / (1 - p_e) - 2 (1 - c)(p_e,i - p_e) / (1 - p_e) with
+    # p_e,i = T_w / (q (q - 1)) sum_k (n_ik / r_i)(1 - pi_k): linear in the feature row
+    # [e_i, a_i, u_i, n_ik / r_i ..], so one matrix-vector product gives every c*_i.
+    a_scale = (n_rated / n2) / (1.0 - pe)
+    b_scale = 2.0 * (1.0 - value) / (1.0 - pe) * (tw / (k * (k - 1)))
+    coef = [-a_scale * pe, a_scale, 0.0, *(-b_scale * (1.0 - p) for p in pi)]
+    cstar = feats @ np.array(coef)
+    cstar += 2.0 * (1.0 - value) * pe / (1.0 - pe)
     return _finish(name, value, cstar, mult, n_rated, level, notes, None, extra)
 
 
@@ -320,10 +341,12 @@ def brennan_prediger(
     k = rows.shape[1]
     sums = mult @ feats
     value = float(_bp_from_sums(sums[:3], w))
-    n2, n_rated = sums[0], int(sums[2])
+    s_list = sums.tolist()
+    info["items_pairable"] = int(s_list[0])
+    n2, n_rated = s_list[0], int(s_list[2])
     pe = float(w.sum()) / k**2
     extra: dict[str, object] = {
-        **info, "p_o": _finite_or_none(sums[1] / n2) if n2 else None, "p_e": pe,
+        **info, "p_o": _finite_or_none(s_list[1] / n2) if n2 else None, "p_e": pe,
         "finite_population_correction": False,
     }
     why = None
@@ -331,12 +354,13 @@ def brennan_prediger(
         why = "The Brennan–Prediger coefficient is undefined: the scale has a single category."
     elif n2 == 0:
         why = "The Brennan–Prediger coefficient is undefined: no item has two or more ratings."
-    elif np.count_nonzero(mult @ rows) == 1:
+    elif sum(x > 0 for x in s_list[3:]) == 1:  # the category shares: one category used
         why = _one_category("The Brennan–Prediger coefficient", value, extra)
     if why is not None:
         return _finish("Brennan–Prediger", value, None, mult, n_rated, level, notes, why, extra)
     if info["items_unrated"]:
         keep = m >= 1
-        m, feats, mult = m[keep], feats[keep], mult[keep]
-    cstar = (n_rated / n2) * (feats[:, 1] - pe * (m >= 2)) / (1.0 - pe)
+        feats, mult = feats[keep], mult[keep]
+    a_scale = (n_rated / n2) / (1.0 - pe)
+    cstar = feats[:, :2] @ np.array([-a_scale * pe, a_scale])
     return _finish("Brennan–Prediger", value, cstar, mult, n_rated, level, notes, None, extra)

@@ -29,6 +29,9 @@ import numpy as np
 
 from .proportion import _confidence_level_iv, normal_quantile
 from .results import Estimate
+from .tables import _ones
+
+_SMALL = 1 << 14  # ratings up to which one bincount over every rater is used
 
 
 def _int_codes(values: np.ndarray | list[int], name: str, *, widen: bool = True) -> np.ndarray:
@@ -79,10 +82,7 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
         )
         c = c[:, complete]
     m, n = c.shape
-    same = np.ones(n, dtype=bool)
-    for g in range(1, m):  # loop over raters, never over items
-        same &= c[g] == c[0]
-    agreeing = int(same.sum()) if m else 0
+    agreeing = int(np.count_nonzero((c == c[0]).all(axis=0))) if m else 0
 
     def undefined(reason: str) -> Estimate:
         return Estimate(
@@ -101,12 +101,21 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
         )
 
     k = int(c.max()) + 1
-    counts = np.stack([np.bincount(c[g], minlength=k) for g in range(m)])  # (m, k)
+    small = m * n <= _SMALL
+    if small:  # every rater's counts in one bincount: rater g's codes in bins g·k .. g·k + k-1
+        cell = c + (np.arange(m, dtype=np.intp) * k)[:, None]
+        counts = np.bincount(cell.ravel(), minlength=m * k).reshape(m, k)  # (m, k)
+    else:  # one pass per rater (never per item), without an index array of every rating
+        counts = np.stack([np.bincount(c[g], minlength=k) for g in range(m)])
     below = np.cumsum(counts, axis=1) - counts
     midrank = below + (counts + 1) / 2.0  # (m, k): mid-rank of category c for rater j
-    rank_sums = np.zeros(n)  # R_i over raters
-    for g in range(m):
-        rank_sums += midrank[g].take(c[g])
+    # R_i over raters; mid-ranks are halves of whole numbers, so these sums are exact
+    if small:
+        rank_sums = _ones(m) @ midrank.ravel().take(cell)
+    else:
+        rank_sums = np.zeros(n)
+        for g in range(m):
+            rank_sums += midrank[g].take(c[g])
     dev = rank_sums - m * (n + 1) / 2.0
     s = float(dev @ dev)
     ties = float((counts.astype(np.float64) ** 3 - counts).sum())

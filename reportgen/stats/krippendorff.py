@@ -26,12 +26,13 @@ three levels (tests/stats/test_krippendorff.py).
 
 from __future__ import annotations
 
+import math
 from typing import Literal
 
 import numpy as np
 
 from .results import Estimate
-from .tables import CountPatterns, _confidence_level_iv, _finite_or_none, as_patterns
+from .tables import CountPatterns, _confidence_level_iv, _finite_or_none, _ones, as_patterns
 
 __all__ = [
     "coincidence_matrix",
@@ -129,16 +130,16 @@ def _alpha_parts(
         lead = s.shape[:-1]
         flat = s.reshape(-1, k * k)
         n_c = (flat @ np.kron(np.eye(k), np.ones((k, 1)))).reshape(lead + (k,))
-        n = n_c @ np.ones(k)
+        n = n_c @ _ones(k)
         if level == "ordinal":
             d2 = _delta2(n_c, level, v).reshape(-1, k * k)
-            d_obs = ((flat * d2) @ np.ones(k * k)).reshape(lead)
+            d_obs = ((flat * d2) @ _ones(k * k)).reshape(lead)
             outer = (n_c[..., :, None] * n_c[..., None, :]).reshape(-1, k * k)
-            d_exp = ((outer * d2) @ np.ones(k * k)).reshape(lead)
+            d_exp = ((outer * d2) @ _ones(k * k)).reshape(lead)
         else:  # one delta matrix for every replicate
             d2 = _delta2(np.zeros(k), level, v)
             d_obs = (flat @ d2.reshape(-1)).reshape(lead)
-            d_exp = ((n_c @ d2) * n_c) @ np.ones(k)
+            d_exp = ((n_c @ d2) * n_c) @ _ones(k)
     else:
         n_c = o.sum(axis=-1)
         n = n_c.sum(axis=-1)
@@ -152,6 +153,37 @@ def _alpha_parts(
     with np.errstate(divide="ignore", invalid="ignore"):
         alpha = 1.0 - (n - 1.0) * d_obs / d_exp
     return np.where((n > 1) & (d_exp > 0), alpha, np.nan), d_obs, d_exp, n, n_c
+
+
+def _alpha_one(
+    o: list[list[float]], level: str, v: np.ndarray | None
+) -> tuple[float, float, float, float, list[float]]:
+    """:func:`_alpha_parts` for one coincidence matrix, in Python floats (k is small)."""
+    k = len(o)
+    n_c = [sum(row) for row in o]
+    n = sum(n_c)
+    if level == "nominal":  # off-diagonal sums (no n^2 - sum n_c^2 cancellation)
+        d_obs = sum(o[c][j] for c in range(k) for j in range(k) if c != j)
+        d_exp = sum(n_c[c] * n_c[j] for c in range(k) for j in range(k) if c != j)
+    else:
+        if level == "interval":
+            vals = list(range(k)) if v is None else v.tolist()
+            d2 = [[(vals[c] - vals[j]) ** 2 for j in range(k)] for c in range(k)]
+        else:  # ordinal: from the marginals, (sum_{g=c}^{j} n_g - (n_c + n_j) / 2)^2
+            cum = [0.0] * k
+            run = 0.0
+            for c in range(k):
+                run += n_c[c]
+                cum[c] = run
+            d2 = [
+                [(cum[j] - cum[c] + (n_c[c] - n_c[j]) / 2.0) ** 2 for j in range(k)]
+                for c in range(k)
+            ]
+        d_obs = sum(o[c][j] * d2[c][j] for c in range(k) for j in range(k))
+        d_exp = sum(n_c[c] * n_c[j] * d2[c][j] for c in range(k) for j in range(k))
+    ok = n > 1 and d_exp > 0
+    alpha = 1.0 - (n - 1.0) * d_obs / d_exp if ok else math.nan
+    return alpha, d_obs, d_exp, n, n_c
 
 
 def krippendorff_alpha(
@@ -175,19 +207,24 @@ def krippendorff_alpha(
     v = _level_iv(level, values, k)
     rows = pat.rows.astype(np.float64)
     mult = pat.multiplicity.astype(np.float64)
-    m = rows.sum(axis=1)
+    m = rows @ _ones(k)  # ratings per pattern (exact: whole numbers)
     # Column sums of krippendorff_alpha_features(rows) weighted by multiplicity, formed as one
     # small matrix product instead of an (items, k, k) array: sum_u s_u n_uc n_uk - diag(s_u n_uc)
     # with s_u = multiplicity / (m_u - 1) for pairable units.
-    scale = mult * np.where(m >= 2, 1.0 / np.where(m >= 2, m - 1.0, 1.0), 0.0)
+    pairable = m >= 2
+    if m.min() >= 2:
+        scale = mult / (m - 1.0)
+    else:
+        scale = mult * np.where(pairable, 1.0 / np.where(pairable, m - 1.0, 1.0), 0.0)
     scaled = rows * scale[:, None]
     o = scaled.T @ rows
-    o[np.diag_indices(k)] -= scaled.sum(axis=0)
+    o[np.diag_indices(k)] -= scale @ rows
     sums = o.reshape(k * k)
-    alpha, d_obs, d_exp, n_values, n_c = _alpha_parts(sums, level, v)
+    alpha, d_obs, d_exp, n_values, n_c = _alpha_one(o.tolist(), level, v)
+    units_dropped = mult @ np.stack([pairable, m == 1], axis=1)
     value = float(alpha)
-    units = int(mult @ (m >= 2))
-    dropped = int(mult @ (m == 1))
+    units, dropped = (int(x) for x in units_dropped.tolist())
+    del sums, n_c
     n_values = float(n_values)
     notes: list[str] = []
     if dropped:
@@ -201,7 +238,7 @@ def krippendorff_alpha(
         "units_pairable": units,
         "coincidences": o.tolist(),
     }
-    if not np.isfinite(value):
+    if not math.isfinite(value):
         if n_values <= 1:
             why = "Krippendorff's alpha is undefined: no item has two or more ratings."
         else:

@@ -28,6 +28,8 @@ pairwise kappas on random data (test-only cross-checks).
 
 from __future__ import annotations
 
+import functools
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -35,6 +37,7 @@ import numpy as np
 from .cohen import _categories_iv, _cohen_estimates, _kappa_from_tables, weights_iv
 from .proportion import _confidence_level_iv
 from .results import Estimate
+from .tables import _ones
 
 # --------------------------------------------------------------------------- helpers
 
@@ -47,6 +50,13 @@ def _matrix_iv(codes: np.ndarray | list[list[int]], k: int) -> np.ndarray:
         return arr.astype(np.int64)
     if arr.dtype.kind not in "iu":
         raise TypeError(f"codes must hold integer category codes (-1 = missing), got {arr.dtype}")
+    if arr.dtype.kind == "i" and arr.dtype.itemsize < 8:
+        # viewed as unsigned and shifted by one, -1 becomes 0, valid codes 1 .. k and any other
+        # negative code wraps round above k: one reduction checks the range
+        unsigned = np.dtype(f"u{arr.dtype.itemsize}")
+        if int(np.add(arr.view(unsigned), unsigned.type(1)).max()) > k:
+            raise ValueError(f"codes hold values outside -1 .. {k - 1}")
+        return arr
     if arr.min() < -1 or arr.max() >= k:
         raise ValueError(f"codes hold values outside -1 .. {k - 1}")
     return arr
@@ -56,9 +66,14 @@ def _rater_name(labels: Sequence[str] | None, g: int) -> str:
     return str(labels[g]) if labels is not None else f"rater {g + 1}"
 
 
+@functools.lru_cache(maxsize=64)
 def _pair_index(n_raters: int) -> tuple[np.ndarray, np.ndarray]:
+    """Read-only (g, h) of every rater pair g < h, in ``np.triu_indices`` order (built once)."""
     g, h = np.triu_indices(n_raters, 1)
-    return g.astype(np.int64), h.astype(np.int64)
+    g, h = g.astype(np.int64), h.astype(np.int64)
+    g.flags.writeable = False
+    h.flags.writeable = False
+    return g, h
 
 
 def _extended(codes: np.ndarray, k: int) -> np.ndarray:
@@ -67,6 +82,16 @@ def _extended(codes: np.ndarray, k: int) -> np.ndarray:
 
 
 _SMALL = 1 << 14  # ratings up to which one bincount beats the column-wise counting
+
+
+@functools.lru_cache(maxsize=64)
+def _bin_offsets(n: int, r: int, k1: int) -> tuple[np.ndarray, np.ndarray]:
+    """Read-only first-bin offsets of each item (column) and each rater (row), k1 bins each."""
+    item_off = (np.arange(n, dtype=np.intp) * k1)[:, None]
+    rater_off = (np.arange(r, dtype=np.intp) * k1)[None, :]
+    item_off.flags.writeable = False
+    rater_off.flags.writeable = False
+    return item_off, rater_off
 
 
 def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
@@ -80,13 +105,13 @@ def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     """
     n, r = codes.shape
     if n * r <= _SMALL:
-        ext = _extended(codes, k)
+        # codes + 1 puts a missing rating in bin 0 of each item's / rater's k + 1 bins
         k1 = k + 1
-        item_idx = ext + (np.arange(n, dtype=np.intp) * k1)[:, None]
-        items = np.bincount(item_idx.ravel(), minlength=n * k1).reshape(n, k1)[:, :k].T
-        rater_idx = ext + (np.arange(r, dtype=np.intp) * k1)[None, :]
-        raters = np.bincount(rater_idx.ravel(), minlength=r * k1).reshape(r, k1)[:, :k]
-        return items, raters
+        shifted = codes.astype(np.intp) + 1
+        item_off, rater_off = _bin_offsets(n, r, k1)
+        items = np.bincount((shifted + item_off).ravel(), minlength=n * k1)
+        raters = np.bincount((shifted + rater_off).ravel(), minlength=r * k1)
+        return items.reshape(n, k1)[:, 1:].T, raters.reshape(r, k1)[:, 1:]
     by_rater = np.ascontiguousarray(codes.T)
     acc = np.zeros((k, n), dtype=np.uint8 if r < 256 else np.int32)
     raters = np.empty((r, k), dtype=np.int64)
@@ -99,15 +124,35 @@ def _counts(codes: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     return acc.astype(np.int64), raters
 
 
+@functools.lru_cache(maxsize=64)
+def _pair_cell_map(r: int, k1: int) -> tuple[np.ndarray, np.ndarray]:
+    """Read-only (r, n_pairs) integer map and (1, n_pairs) block offsets: for codes ``ext``
+    (missing = k), ``ext @ map + offsets`` is each rater pair's cell of its k1 × k1 block."""
+    g, h = _pair_index(r)
+    to_cells = np.zeros((r, g.size), dtype=np.intp)
+    pair = np.arange(g.size)
+    to_cells[g, pair] = k1
+    to_cells[h, pair] = 1
+    block = (pair.astype(np.intp) * (k1 * k1))[None, :]
+    to_cells.flags.writeable = False
+    block.flags.writeable = False
+    return to_cells, block
+
+
 def _pair_tables_ext(ext: np.ndarray, k: int) -> np.ndarray:
     """(n_pairs, k, k) float64 tables of rater pairs over the items both rated.
 
     One bincount per rater pair (a loop over pairs, never over items).
     """
-    r = ext.shape[1]
+    n, r = ext.shape
     g_idx, h_idx = _pair_index(r)
-    cols = np.ascontiguousarray(ext.T)
     k1 = k + 1
+    if n * g_idx.size <= _SMALL:  # small study: every pair's cells in one bincount
+        to_cells, block = _pair_cell_map(r, k1)
+        cell = ext @ to_cells + block  # pair p's cell: ext[g] * (k + 1) + ext[h], in block p
+        flat = np.bincount(cell.ravel(), minlength=g_idx.size * k1 * k1)
+        return flat.reshape(g_idx.size, k1, k1)[:, :k, :k].astype(np.float64)
+    cols = np.ascontiguousarray(ext.T)
     tables = np.empty((g_idx.size, k, k))
     for p, (g, h) in enumerate(zip(g_idx.tolist(), h_idx.tolist(), strict=True)):
         cell = cols[g] * k1 + cols[h]
@@ -336,9 +381,10 @@ def _item_disagreement(by_category: np.ndarray, w: np.ndarray) -> tuple[np.ndarr
     """Per item from (k, n) counts: (≥ 2 ratings mask, Σ_kl (1 − w_kl) r_ik r_il / (r_i(r_i − 1)),
     0 below two ratings)."""
     counts = np.ascontiguousarray(by_category, dtype=np.float64)
-    m = counts.sum(axis=0)
+    ones = _ones(counts.shape[0])
+    m = ones @ counts
     multi = m >= 2
-    dis = (((1.0 - w) @ counts) * counts).sum(axis=0)
+    dis = ones @ (((1.0 - w) @ counts) * counts)
     out = np.zeros_like(dis)
     np.divide(dis, m * (m - 1.0), out=out, where=multi)
     return multi, out
@@ -355,12 +401,24 @@ def _conger_features(c: np.ndarray, k: int, w: np.ndarray) -> np.ndarray:
     return feats
 
 
-def _conger_sums(c: np.ndarray, k: int, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Column sums of the Conger features without building them (same numbers), and counts."""
+def _conger_sums(c: np.ndarray, k: int, w: np.ndarray) -> tuple[np.ndarray, int, int]:
+    """Column sums of the Conger features without building them (same numbers), the number
+    of items with two or more ratings and of those on which every rating is alike."""
     counts, rater_counts = _counts(c, k)
-    multi, dis = _item_disagreement(counts, w)
-    head = np.array([multi.sum(), dis.sum()], dtype=np.float64)
-    return np.concatenate([head, rater_counts.ravel().astype(np.float64)]), counts
+    counts = counts.astype(np.float64)
+    ones = _ones(k)
+    m = ones @ counts
+    multi = m >= 2
+    dis = ones @ (((1.0 - w) @ counts) * counts)
+    np.divide(dis, m * (m - 1.0), out=dis, where=multi)
+    dis[~multi] = 0.0
+    items = int(np.count_nonzero(multi))
+    agreeing = int(np.count_nonzero(multi & (counts.max(axis=0) == m))) if items else 0
+    sums = np.empty(2 + rater_counts.size)
+    sums[0] = items
+    sums[1] = dis.sum()
+    sums[2:] = rater_counts.ravel()
+    return sums, items, agreeing
 
 
 def conger_kappa_from_sums(
@@ -391,6 +449,8 @@ def _conger_parts(
     """(kappa, 1 − p_a, 1 − p_e) from sums (..., 2 + r·k); kappa NaN where undefined."""
     r = (s.shape[-1] - 2) // k
     d = 1.0 - w
+    if s.ndim == 1:  # one study: the same sums in Python floats (r·k numbers)
+        return _conger_parts_one(s.tolist(), k, r, d.tolist())
     n2 = s[..., 0]
     # Conger (1980) / Gwet (2014): p_e = Σ_kl w_kl Σ_{g≠h} p_gk p_hl / (r(r − 1)).
     classif = s[..., 2:].reshape(s.shape[:-1] + (r, k))
@@ -399,13 +459,13 @@ def _conger_parts(
         # (numpy reduces over short trailing axes and multiplies stacks of small matrices slowly)
         lead = s.shape[:-1]
         flat = classif.reshape(-1, k)  # (batch·r, k)
-        n_g = (flat @ np.ones(k)).reshape(lead + (r,))
-        r_eff = (n_g > 0) @ np.ones(r)
+        n_g = (flat @ _ones(k)).reshape(lead + (r,))
+        r_eff = (n_g > 0) @ _ones(r)
         share = classif / np.where(n_g > 0, n_g, 1.0)[..., None]
         total = share.sum(axis=-2)
         flat_share = share.reshape(-1, k)
-        own = (((flat_share @ d) * flat_share) @ np.ones(k)).reshape(lead + (r,)) @ np.ones(r)
-        cross = ((total @ d) * total) @ np.ones(k) - own
+        own = (((flat_share @ d) * flat_share) @ _ones(k)).reshape(lead + (r,)) @ _ones(r)
+        cross = ((total @ d) * total) @ _ones(k) - own
     else:
         n_g = classif.sum(axis=-1)
         r_eff = (n_g > 0).sum(axis=-1).astype(np.float64)  # raters with at least one rating
@@ -419,6 +479,44 @@ def _conger_parts(
     ok = (n2 > 0) & (r_eff >= 2) & (dis_exp > 0.0)
     ratio = np.divide(dis_obs, dis_exp, out=np.full(np.shape(n2), np.nan), where=ok)
     return 1.0 - ratio, dis_obs, dis_exp
+
+
+def _conger_parts_one(
+    s: list[float], k: int, r: int, d: list[list[float]]
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`_conger_parts` for one vector of sums."""
+    n2, dis_sum = s[0], s[1]
+    total = [0.0] * k
+    own = 0.0
+    r_eff = 0
+    cats = range(k)
+    for g in range(r):
+        row = s[2 + g * k : 2 + (g + 1) * k]
+        n_g = sum(row)
+        if not n_g > 0:
+            continue  # an idle rater's shares are all zero
+        r_eff += 1
+        share = [x / n_g for x in row]
+        for c in cats:
+            total[c] += share[c]
+        for b in cats:
+            acc = 0.0
+            for a in cats:
+                acc += share[a] * d[a][b]
+            own += acc * share[b]
+    cross = 0.0
+    for b in cats:
+        acc = 0.0
+        for a in cats:
+            acc += total[a] * d[a][b]
+        cross += acc * total[b]
+    cross -= own
+    pairs = r_eff * (r_eff - 1.0)
+    dis_exp = cross / pairs if pairs > 0 else 0.0  # 1 − p_e
+    dis_obs = dis_sum / n2 if n2 > 0 else math.nan  # 1 − p_a
+    ok = n2 > 0 and r_eff >= 2 and dis_exp > 0.0
+    kappa = 1.0 - dis_obs / dis_exp if ok else math.nan
+    return np.float64(kappa), np.float64(dis_obs), np.float64(dis_exp)
 
 
 def conger_kappa(
@@ -444,15 +542,15 @@ def conger_kappa(
     c = _matrix_iv(codes, k)
     w = weights_iv(weights, k)
     warnings: list[str] = []
-    rated = (c >= 0).any(axis=0)
+    # The point estimate goes through the bootstrap's formula (_conger_parts); its sums are the
+    # column sums of conger_kappa_features, counted directly without building them.
+    sums, items, agreeing = _conger_sums(c, k, w)
+    rated = sums[2:].reshape(-1, k) @ _ones(k) > 0 if c.size else (c >= 0).any(axis=0)
     if not rated.all():
         idle = [_rater_name(rater_labels, g) for g in np.flatnonzero(~rated)]
         warnings.append(f"Conger's kappa leaves out raters with no rating: {', '.join(idle)}.")
         c = c[:, rated]
-    # The point estimate goes through the bootstrap's formula (_conger_parts); its sums are the
-    # column sums of conger_kappa_features, counted directly without building them.
-    sums, counts = _conger_sums(c, k, w)
-    items, agreeing = _agreement_counts(counts)
+        sums, items, agreeing = _conger_sums(c, k, w)
 
     def undefined(reason: str) -> Estimate:
         return Estimate(

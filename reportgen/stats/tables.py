@@ -12,6 +12,7 @@ Validated against: a per-item Python loop and ``np.unique(axis=0)`` in ``tests/s
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from functools import lru_cache
 
@@ -21,6 +22,8 @@ __all__ = ["CountPatterns", "as_patterns", "compress", "count_patterns", "count_
 
 _SMALL_TABLE = 512  # tables with at most this many items are not compressed
 _DENSE_KEYS_LIMIT = 1 << 24  # largest key space handled by a direct bincount
+_UNSIGNED = {1: np.dtype(np.uint8), 2: np.dtype(np.uint16), 4: np.dtype(np.uint32),
+             8: np.dtype(np.uint64)}
 
 
 def count_table(codes: np.ndarray, n_categories: int) -> np.ndarray:
@@ -200,9 +203,11 @@ def count_patterns(codes: np.ndarray, n_categories: int) -> CountPatterns:
     if a.dtype.kind not in "iu":
         raise TypeError(f"codes must be an integer array, got dtype {a.dtype}")
     n = a.shape[0]
-    slots = int(np.prod(a.shape[1:], dtype=np.int64)) if a.ndim > 1 else 1
+    slots = math.prod(a.shape[1:])  # 1 for a 1-D array
     radix = slots + 1
     if n <= _SMALL_TABLE:
+        if 0 < n and slots and a.dtype.kind == "i" and a.dtype.itemsize < 8:
+            return _small_count_patterns(a.reshape(n, slots), k)
         return as_patterns(count_table(a, k))
     if slots == 0 or k * np.log2(radix) > 62:
         return compress(count_table(a, k))
@@ -222,6 +227,39 @@ def count_patterns(codes: np.ndarray, n_categories: int) -> CountPatterns:
     digits = radix ** np.arange(k, dtype=np.int64)
     rows = (unique_keys[:, None] // digits[None, :]) % radix
     return CountPatterns(rows=rows.astype(np.int64), multiplicity=mult, inverse=inverse)
+
+
+@lru_cache(maxsize=32)
+def _small_layout(n: int, k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Read-only ``(bin offsets, multiplicity 1, identity inverse)`` for an n-item table."""
+    offsets = np.arange(0, n * (k + 1), k + 1, dtype=np.intp)[:, None]
+    ones = np.ones(n, dtype=np.int64)
+    inverse = np.arange(n, dtype=np.intp)
+    for x in (offsets, ones, inverse):
+        x.flags.writeable = False
+    return offsets, ones, inverse
+
+
+def _small_count_patterns(flat: np.ndarray, k: int) -> CountPatterns:
+    """Uncompressed :class:`CountPatterns` of a small (items × slots) signed-integer code array.
+
+    The few numpy calls of :func:`count_table` without its separate min / max passes: the codes
+    viewed as unsigned and shifted by one map -1 to 0 and every valid code to 1 .. k, while any
+    other negative code wraps round to a value above k, so one ``max`` validates everything.
+    """
+    n = flat.shape[0]
+    unsigned = _UNSIGNED[flat.dtype.itemsize]
+    shifted = np.add(flat.view(unsigned), unsigned.type(1))
+    top = int(shifted.max())
+    if top > k:
+        lo, hi = int(flat.min()), int(flat.max())
+        raise ValueError(
+            f"codes must lie in -1 .. {k - 1} (-1 = missing); found values from {lo} to {hi}"
+        )
+    offsets, ones, inverse = _small_layout(n, k)
+    binned = np.bincount((shifted + offsets).ravel(), minlength=n * (k + 1))
+    rows = binned.reshape(n, k + 1)[:, 1:].astype(np.int64)
+    return CountPatterns(rows=rows, multiplicity=ones, inverse=inverse)
 
 
 def _group_keys(key: np.ndarray, keyspace: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -274,6 +312,14 @@ def as_patterns(counts: np.ndarray | CountPatterns) -> CountPatterns:
 # --- small helpers shared by the count-table coefficients (fleiss, gwet, krippendorff) -------
 
 
+@lru_cache(maxsize=128)
+def _ones(n: int) -> np.ndarray:
+    """A read-only float64 vector of ``n`` ones (summing by a matrix product; built once)."""
+    x = np.ones(n)
+    x.flags.writeable = False
+    return x
+
+
 def _confidence_level_iv(confidence_level: float) -> float:
     level = float(confidence_level)
     if not (0.0 < level < 1.0):
@@ -293,8 +339,6 @@ def _normal_critical(confidence_level: float) -> float:
 
 def _two_sided_p(z: float) -> float:
     """Two-sided normal p-value 2(1 - Phi(|z|)), accurate in the far tail."""
-    import math
-
     return math.erfc(abs(z) / math.sqrt(2.0))
 
 

@@ -497,3 +497,40 @@ def test_batched_kappa_matches_one_table_at_a_time() -> None:
         one = np.array([cohen_kappa_from_sums(s, 4, weights=weights) for s in sums])
         np.testing.assert_allclose(batch, one, rtol=0, atol=1e-12)
         assert np.isnan(batch[0]) and np.isnan(one[0])
+
+
+def test_stack_of_records_matches_one_table_at_a_time() -> None:
+    """The rater-pair records are computed for the whole stack of tables at once; every figure
+    (kappa, both SEs, interval, z, p, kappa_max, warnings) equals the one-table path to 1e-12,
+    with an empty and a chance-agreement-1 table mixed in (those keep their own messages)."""
+    from dataclasses import asdict
+
+    from reportgen.stats.cohen import _cohen_estimate, _cohen_estimates, weights_iv
+
+    rng = np.random.default_rng(12)
+    tables = rng.integers(0, 9, size=(40, 4, 4)).astype(float)
+    tables[3] = 0.0  # no item
+    tables[7] = 0.0
+    tables[7, 2, 2] = 5.0  # both ratings always category 2: chance agreement 1
+    tables[9] = np.diag([4.0, 3.0, 0.0, 2.0])  # perfect agreement: no interval
+    for kind in (None, "linear", "quadratic"):
+        w = weights_iv(kind, 4)
+        stack = _cohen_estimates(tables, w, 0.9)
+        for t, got in zip(tables, stack, strict=True):
+            want = asdict(_cohen_estimate(t, w, 0.9))
+            have = asdict(got)
+            assert have.keys() == want.keys()
+            for key, value in want.items():
+                if isinstance(value, float):
+                    assert have[key] == pytest.approx(value, rel=1e-12, abs=1e-12), key
+                elif key == "extra":
+                    assert have[key].keys() == value.keys()
+                    for name, x in value.items():
+                        if isinstance(x, float):
+                            assert have[key][name] == pytest.approx(x, rel=1e-12, abs=1e-12)
+                        else:
+                            assert have[key][name] == x, name
+                else:
+                    assert have[key] == value, key
+    assert stack[3].estimate is None and stack[7].estimate is None
+    assert stack[9].estimate == pytest.approx(1.0) and stack[9].ci_low is None

@@ -427,3 +427,18 @@ def test_batched_conger_and_light_match_one_at_a_time() -> None:
     batch_l = light_kappa_from_sums(sl, 4, weights="quadratic")
     one_l = np.array([light_kappa_from_sums(s, 4, weights="quadratic") for s in sl])
     np.testing.assert_allclose(batch_l, one_l, rtol=0, atol=1e-12)
+
+
+@pytest.mark.parametrize("dtype", [np.int8, np.int16, np.int32, np.int64])
+def test_code_range_is_checked_for_every_integer_width(dtype: type) -> None:
+    """The one-reduction range check (codes seen as unsigned + 1) refuses codes below -1 and
+    at or above k for every signed width, and keeps strided views working."""
+    codes = np.array([[0, 1, -1], [2, 2, 1], [1, 0, 0]], dtype=dtype)
+    base = conger_kappa(codes, 3).estimate
+    assert conger_kappa(np.asfortranarray(codes), 3).estimate == base
+    assert conger_kappa(codes[:, ::-1], 3).estimate is not None
+    for bad in (-2, 3, int(np.iinfo(dtype).min), int(np.iinfo(dtype).max)):
+        wrong = codes.copy()
+        wrong[1, 2] = bad
+        with pytest.raises(ValueError, match="outside -1 .. 2"):
+            conger_kappa(wrong, 3)

@@ -122,3 +122,22 @@ def test_count_patterns_equals_compressed_count_table(
     assert _as_multiset(got.rows, got.multiplicity) == _as_multiset(ref.rows, ref.multiplicity)
     with pytest.raises(ValueError, match="-1 .. "):
         count_patterns(np.full(shape, k), k)
+
+
+@pytest.mark.parametrize("dtype", [np.int8, np.int16, np.int32, np.int64])
+def test_small_study_patterns_and_range_check_for_every_integer_width(dtype: type) -> None:
+    """Small studies take a one-reduction range check (codes seen as unsigned + 1): every
+    signed width gives the per-item loop's table, and any code below -1 or at or above k is
+    refused, including the most negative value of the type."""
+    from reportgen.stats.tables import count_patterns
+
+    rng = np.random.default_rng(int(np.dtype(dtype).itemsize))
+    codes = rng.integers(-1, 3, size=(40, 3, 2)).astype(dtype)
+    got = count_patterns(codes, 3)
+    np.testing.assert_array_equal(got.rows[got.inverse], _loop_count_table(codes, 3))
+    assert got.rows.dtype == np.int64 and got.n_items == 40
+    for bad in (-2, 3, int(np.iinfo(dtype).min), int(np.iinfo(dtype).max)):
+        wrong = codes.copy()
+        wrong[5, 1, 0] = bad
+        with pytest.raises(ValueError, match="-1 .. 2"):
+            count_patterns(wrong, 3)
