@@ -416,6 +416,18 @@ def _outcome(value: Any) -> str:
     return "not certified"
 
 
+def _absent_raters(results: dict[str, Any]) -> set[str]:
+    """Raters with every rating slot empty (possible with ``missing: allow``)."""
+    design = results.get("design") if isinstance(results.get("design"), dict) else {}
+    caveats = results.get("caveats") if isinstance(results.get("caveats"), dict) else {}
+    missing = caveats.get("missing") if isinstance(caveats.get("missing"), dict) else {}
+    by_rater = missing.get("by_rater") if isinstance(missing.get("by_rater"), dict) else {}
+    items, trials = design.get("items"), design.get("trials")
+    if not isinstance(items, int) or not isinstance(trials, int) or items * trials == 0:
+        return set()
+    return {str(r) for r, n in by_rater.items() if n == items * trials}
+
+
 def certification_summary(results: dict[str, Any], facts: dict[str, Any]) -> dict[str, Any]:
     """Per-inspector certification, from the verdict's ``certification`` block.
 
@@ -434,10 +446,13 @@ def certification_summary(results: dict[str, Any], facts: dict[str, Any]) -> dic
     window = cert.get("due_window_days")
     window = window if isinstance(window, int) else 30  # verdict.DEFAULT_DUE_WINDOW_DAYS
     out: dict[str, Any] = {}
+    absent = _absent_raters(results)
     for v in inspectors:
         if not isinstance(v, dict) or v.get("rater") is None:
             continue
         rid = str(v["rater"])
+        if rid in absent:  # gave no rating: took no part, so this study says nothing of them
+            continue
         outcome = _outcome(v.get("outcome"))
         certified_on = v.get("certified_on") if outcome == "certified" else None
         if outcome == "certified" and not certified_on:
@@ -543,12 +558,18 @@ def open_index(root: Path, *, create: bool) -> sqlite3.Connection:
         root.mkdir(parents=True, exist_ok=True)
     conn = _connect(db)
     if create:
-        with _write_transaction(conn):
-            for stmt in _split_sql(SCHEMA):
-                conn.execute(stmt)
-            conn.execute(
-                "INSERT OR IGNORE INTO meta(key, value) VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),)
-            )
+        try:
+            with _write_transaction(conn):
+                for stmt in _split_sql(SCHEMA):
+                    conn.execute(stmt)
+                conn.execute(
+                    "INSERT OR IGNORE INTO meta(key, value) VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),)
+                )
+        except sqlite3.DatabaseError as exc:
+            conn.close()
+            if isinstance(exc, sqlite3.OperationalError):  # locked, read-only …: not a damaged file
+                raise
+            raise InputError.single(db, f"not a reportgen archive index: {exc}") from None
     try:
         row = conn.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
     except sqlite3.DatabaseError as exc:

@@ -278,6 +278,8 @@ def format_text(entries: Sequence[ArchiveEntry], series: Sequence[TrendSeries]) 
                 marks.append(f"new item set: +{p.items_added} / -{p.items_removed} items")
             if p.superseded_by:
                 marks.append(f"superseded by rev{p.superseded_by}")
+            if not p.entry.study_date:
+                marks.append("no study date: the archive date is shown")
             verdict = p.entry.verdict or "no verdict"
             lines.append(
                 f"  {p.date}  {p.label:<24} {verdict:<8} {fig}" + (f"  [{'; '.join(marks)}]" if marks else "")
@@ -422,7 +424,7 @@ def render_history_html(
             rows.append(
                 {
                     "label": p.label,
-                    "date": p.date,
+                    "date": p.date if p.entry.study_date else f"{p.date} (archived; no study date)",
                     "verdict": p.entry.verdict,
                     "items": len(p.entry.items),
                     "item_note": (

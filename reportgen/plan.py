@@ -405,6 +405,17 @@ def make_plan(study: Study, items: Sequence[PlanItem], settings: PlanSettings) -
             f"{n} items allow only {math.factorial(n)} different orders, but {n_sheets} run sheets need one each",
             hint="add items, or plan fewer raters or trials",
         )
+    sheet_names: dict[str, str] = {}
+    for rater in study.raters:  # run sheet files are named after the rater id
+        other = sheet_names.setdefault(_safe_name(rater.id).casefold(), rater.id)
+        if other != rater.id:
+            raise InputError.single(
+                study.path,
+                f"raters {other!r} and {rater.id!r} would get run sheet files of the same name "
+                f"({_safe_name(rater.id)}-trial-1.csv)",
+                key="raters",
+                hint="give them ids that differ in letters or digits, not only in spaces, signs or case",
+            )
     rng = np.random.default_rng(settings.seed)
     forbidden = {it.item.upper() for it in items} | {c.upper() for c in study.category_codes}
     labels, length = _draw_labels(rng, n * study.trials, forbidden)

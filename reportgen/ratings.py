@@ -13,7 +13,7 @@ Layouts (documented in the README, "Ratings files"):
 Reading is exact: codes, ids and items are compared as text after trimming spaces (``007``
 stays ``007``), and every problem names the file, the physical line (or cell) and the column.
 
-Speed: a regular CSV over ``SMALL_BYTES`` (same number of delimiters on every non-blank line,
+Speed: a regular CSV over ``SMALL_BYTES`` or ``SMALL_ROWS`` lines (same number of delimiters on every non-blank line,
 well-formed quotes without line breaks inside, no bare carriage returns) is parsed by pandas' C reader into categorical
 columns (no NA guessing, blank lines kept so that record *n* is physical line *n*).  Every
 column is factorised once, trimmed per distinct value, and all checks run on the integer codes

@@ -69,6 +69,10 @@ TABLE_SUFFIXES = (".csv", ".txt", ".tsv", ".xlsx")
 #: codes are stored as int8 in Ratings.codes, -1 meaning missing
 MAX_CATEGORIES = 100
 STUDY_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]*$")
+#: longest study id: it names folders and files, and file names are limited to 255 bytes
+MAX_STUDY_ID = 100
+#: longest rater id: a code that names run sheet files (<rater>-trial-<n>.pdf)
+MAX_RATER_ID = 64
 
 _ABSENT = object()
 
@@ -283,6 +287,9 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
                 Problem(
                     Location(doc.shown, 1, 1),
                     f"the study definition must be a mapping of keys, got {_kind(doc.data)}",
+                    "give the study definition (study.yaml), not a ratings or reference file"
+                    if Path(path).suffix.lower() in (".csv", ".tsv", ".txt", ".xlsx")
+                    else None,
                 )
             ]
         )
@@ -299,6 +306,13 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
             ("study", "id"),
             f"{study_id!r} may hold only letters, digits, '-', '_' and '.', starting with a letter or digit",
             "the id is used in folder names",
+        )
+        study_id = None
+    if study_id is not None and len(study_id) > MAX_STUDY_ID:
+        r.error(
+            ("study", "id"),
+            f"the id has {len(study_id)} characters; at most {MAX_STUDY_ID} are allowed",
+            "the id names folders and files (<id>-rev<N>.pdf); keep it short",
         )
         study_id = None
     title = r.text(("study", "title"), required=True)
@@ -523,6 +537,13 @@ def _raters(r: _Reader) -> list[Rater]:
                 id_keys,
                 f"rater id {rid!r} must not contain '/'",
                 "'/' separates rater and trial in wide ratings files",
+            )
+            continue
+        if len(rid) > MAX_RATER_ID:
+            r.error(
+                id_keys,
+                f"rater id has {len(rid)} characters; at most {MAX_RATER_ID} are allowed",
+                "the id is a short code (it names run sheet files); put the full name in `name`",
             )
             continue
         seen[rid] = i

@@ -1441,7 +1441,10 @@ def _item_count_table(items: Any, codes: Sequence[str]) -> Any:
         rows = list(map(get, counts))
     except KeyError:
         rows = [tuple(c.get(code, 0) for code in codes) for c in counts]
-    table = np.array(rows)  # Python ints only give int64; None, floats or text do not
+    try:
+        table = np.array(rows)  # Python ints only give int64; None, floats or text do not
+    except (TypeError, ValueError):  # a list or other sequence among the counts
+        return None
     if table.dtype != np.int64 or table.shape != (len(items), len(codes)):
         return None
     bound = int(np.abs(table).max())

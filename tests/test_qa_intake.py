@@ -181,3 +181,40 @@ def test_a_row_that_cannot_be_placed_is_not_also_reported_as_absent_ratings(make
         (6, "undeclared rater 'R7'"),
         (None, "no rating for item 'I10' by rater R1 in trial 1"),
     ]
+
+
+@pytest.mark.parametrize(
+    ("name", "data", "message"),
+    [
+        ("ratings.csv", b"item,rater,trial,rating\n", "the study definition must be a mapping of keys, got str"),
+        ("ratings.xlsx", b"PK\x03\x04rest-of-a-zip", "this is a workbook or other binary file, not a study definition"),
+        ("report.pdf", b"%PDF-1.7\n", "this is a PDF, not a study definition"),
+    ],
+)
+def test_giving_another_file_as_the_study_says_so(run_cli, tmp_path: Path, name: str, data: bytes, message: str) -> None:
+    """Defect: `check ratings.xlsx` said 'not UTF-8 text … save the study definition as UTF-8'."""
+    path = tmp_path / name
+    path.write_bytes(data)
+    code, _, err = run_cli("check", path)
+    assert code == 2 and message in err
+    assert "give the study definition" in err
+
+
+def test_an_overlong_study_id_is_refused_before_any_work(make_study, run_cli) -> None:
+    """Defect: a 250-character id passed `check`; `build` then computed everything and ended with
+    exit 70 ('File name too long'), leaving an empty folder behind."""
+    path = make_study(study={"id": "L" * 250})
+    code, _, err = run_cli("check", path)
+    assert code == 2 and "study.id: the id has 250 characters; at most 100 are allowed" in err
+    out = Path(path).parent / "out"
+    assert run_cli("build", path, "-o", out, "--no-pdf", "-q")[0] == 2 and not out.exists()
+    assert load_study(make_study(Path(path).parent.parent / "ok", study={"id": "L" * 100})).id == "L" * 100
+
+
+def test_init_keeps_a_long_folder_name_within_the_id_limit(run_cli, tmp_path: Path) -> None:
+    folder = tmp_path / ("door-finish-" + "x" * 150)
+    code, _, err = run_cli("init", folder, "--items", "3")
+    assert code == 0, err
+    assert load_study(folder / "study.yaml").id == ("door-finish-" + "x" * 150)[:100]
+    code, _, err = run_cli("init", tmp_path / "b", "--id", "Y" * 101)
+    assert code == 2 and "at most 100 characters" in err

@@ -163,3 +163,40 @@ def test_archive_refuses_a_results_json_changed_after_build(tmp_path: Path) -> N
     assert p.location.path == str(rev / "results.json")
     assert p.message.startswith("differs from the results.json attached to the report PDF")
     assert not (root / "SEAL-CHECK").exists()
+
+
+def test_a_rater_with_no_rating_keeps_the_earlier_certification() -> None:
+    """Defect: a requalification in which inspector R1 gave no rating (missing: allow) archived
+    R1 as 'not certified', and the register ended R1's valid certification from the year before."""
+    from reportgen.archive import certification_summary
+
+    results = {
+        "design": {"items": 30, "trials": 2},
+        "caveats": {"missing": {"by_rater": {"R1": 60, "R2": 0, "R3": 3}}},
+        "certification": {
+            "study_date": "2027-01-10",
+            "valid_months": 12,
+            "due_window_days": 30,
+            "inspectors": [
+                {"rater": "R1", "name": "Ana Ruiz", "outcome": "not certified"},
+                {"rater": "R2", "name": "Ben Okafor", "outcome": "certified", "valid_until": "2028-01-31"},
+                {"rater": "R3", "name": "Chen Wu", "outcome": "not certified"},
+            ],
+        },
+    }
+    summary = certification_summary(results, {})
+    assert sorted(summary) == ["R2", "R3"]  # R3 missed 3 ratings but took part
+    assert summary["R3"]["outcome"] == "not certified"
+    assert summary["R2"]["valid_until"] == "2028-01-31"
+
+
+def test_archive_into_a_damaged_index_is_bad_input(tmp_path: Path, run_cli) -> None:
+    """Defect: `archive` into a folder whose index.sqlite is not a database ended with exit 70
+    (history and register already said 'not a reportgen archive index')."""
+    rev = make_revision(tmp_path / "output", "SEAL-CHECK", 1)
+    root = tmp_path / "archive"
+    root.mkdir()
+    (root / "index.sqlite").write_bytes(b"not a database, just text\n")
+    code, _, err = run_cli("archive", rev, "--archive", root)
+    assert code == 2 and "not a reportgen archive index" in err
+    assert sorted(p.name for p in root.iterdir()) == ["index.sqlite"]

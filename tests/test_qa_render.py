@@ -147,3 +147,55 @@ def test_a_bad_source_date_epoch_is_bad_input_not_an_internal_error(make_study, 
     assert code == 2
     assert "SOURCE_DATE_EPOCH: error: must be a whole number of seconds" in err
     assert not out.exists()
+
+
+def test_history_marks_a_study_without_date(tmp_path: Path) -> None:
+    """Defect: an undated study was listed under its archive date as if it were the study date."""
+    from reportgen.history import format_text
+
+    root = tmp_path / "archive"
+    when = dt.datetime(2026, 3, 1, 12, 0, tzinfo=dt.UTC)
+    archive_revision(make_revision(tmp_path / "output", "SEAL-CHECK", 1, date=None), archive_dir=root, now=when)
+    entries, series = load_history(root)
+    text = format_text(entries, series)
+    assert "2026-03-01  SEAL-CHECK rev1" in text and "[no study date: the archive date is shown]" in text
+    html = render_history_html(entries, series, generated_at=when, filters={})
+    assert "2026-03-01 (archived; no study date)" in html
+
+
+def _plan_study(tmp_path: Path, raters: str) -> Path:
+    study = tmp_path / "study.yaml"
+    study.write_text(
+        f"""study: {{id: PLAN-IDS, title: "Weld spatter by eye"}}
+scale: binary
+categories: [{{code: OK, label: Clean}}, {{code: SP, label: Spatter}}]
+defect_category: SP
+raters: {raters}
+trials: 2
+ratings: ratings.csv
+plan: {{seed: 3}}
+""",
+        encoding="utf-8",
+    )
+    (tmp_path / "items.csv").write_text(
+        "item,reference\n" + "".join(f"W{i:02d},{'SP' if i % 3 == 0 else 'OK'}\n" for i in range(1, 13)),
+        encoding="utf-8",
+    )
+    return study
+
+
+def test_plan_refuses_raters_whose_sheet_files_would_clash(tmp_path: Path, run_cli) -> None:
+    """Defect: rater ids 'B M' and 'B_M' both map to run sheets named B_M-trial-<n>."""
+    study = _plan_study(tmp_path, '["B M", "B_M"]')
+    code, _, err = run_cli("plan", study, "--items", tmp_path / "items.csv", "--output", tmp_path / "out", "--no-pdf", "-q")
+    assert code == 2
+    assert "raters 'B M' and 'B_M' would get run sheet files of the same name (B_M-trial-1.csv)" in err
+    assert not (tmp_path / "out").exists()
+
+
+def test_an_overlong_rater_id_is_refused(tmp_path: Path, run_cli) -> None:
+    """Defect: a 260-character rater id ended `plan` with exit 70 ('File name too long')."""
+    study = _plan_study(tmp_path, f'["{"R" * 260}", R2]')
+    code, _, err = run_cli("plan", study, "--items", tmp_path / "items.csv", "--output", tmp_path / "out", "--no-pdf", "-q")
+    assert code == 2 and "raters[0]: rater id has 260 characters; at most 64 are allowed" in err
+    assert not (tmp_path / "out").exists()

@@ -182,10 +182,14 @@ def command(
         raise click.BadParameter("rater ids must differ", param_hint="--raters")
     if any("/" in r or "," in r for r in rater_ids):
         raise click.BadParameter("rater ids must not contain '/'", param_hint="--raters")
+    from ..study import MAX_STUDY_ID
+
     if study_id is None:
-        study_id = re.sub(r"[^A-Za-z0-9._-]+", "-", folder.resolve().name).strip("-.") or "study"
+        study_id = re.sub(r"[^A-Za-z0-9._-]+", "-", folder.resolve().name)[:MAX_STUDY_ID].strip("-.") or "study"
     elif not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", study_id):
         raise click.BadParameter("letters, digits, '-', '_' and '.' only", param_hint="--id")
+    elif len(study_id) > MAX_STUDY_ID:
+        raise click.BadParameter(f"at most {MAX_STUDY_ID} characters", param_hint="--id")
     width = max(3, len(str(n_items)))
     items = [f"{i:0{width}d}" for i in range(1, n_items + 1)]
     contents = {

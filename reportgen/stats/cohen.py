@@ -310,20 +310,31 @@ def _cohen_estimates(tables: np.ndarray, w: np.ndarray, level: float) -> list[Es
         q = 1.0 - p_e
         scale = n_arr * q * q
         dev = w_flat - marg * (1.0 - kappa_arr)[:, None]
-        var = ((p * dev * dev) @ ones_kk - (kappa_arr - p_e * (1.0 - kappa_arr)) ** 2) / scale
+        first = (p * dev * dev) @ ones_kk
+        second = (kappa_arr - p_e * (1.0 - kappa_arr)) ** 2
+        var = (first - second) / scale
         dev0 = w_flat - marg
         outer = (rows[:, :, None] * cols[:, None, :]).reshape(m_tables, k * k)
-        var0 = ((outer * dev0 * dev0) @ ones_kk - p_e * p_e) / scale
+        first0 = (outer * dev0 * dev0) @ ones_kk
+        second0 = p_e * p_e
+        var0 = (first0 - second0) / scale
         diag_min = np.minimum(rows_n, cols_n) @ _ones(k)
+        # A variance that is a difference of nearly equal terms (zero for perfect agreement, for
+        # example) is rounding noise whose sign decides whether an interval or test is given;
+        # such tables take the one-table path, whose arithmetic is the reference.
+        fragile = (np.abs(first - second) <= 1e-6 * np.maximum(first, second)) | (
+            np.abs(first0 - second0) <= 1e-6 * np.maximum(first0, second0)
+        )
     agreeing = (flat[:, :: k + 1] @ _ones(k)).tolist()
     label = "Weighted kappa" if weighted else "Cohen's kappa"
     zq = normal_quantile(level)
+    fragile_list = fragile.tolist()
     out = []
     for i, (kappa, n_f, exp_f, po, pe, v, v0, dmin) in enumerate(zip(
         kappa_arr.tolist(), n_list, exp_list, p_o.tolist(), p_e.tolist(), var.tolist(),
         var0.tolist(), diag_min.tolist(), strict=True,
     )):
-        if int(n_f) == 0 or not exp_f > 0.0:
+        if int(n_f) == 0 or not exp_f > 0.0 or fragile_list[i]:
             out.append(_cohen_estimate(tables[i], w, level, weighted=weighted))
             continue
         se = math.sqrt(max(v, 0.0))

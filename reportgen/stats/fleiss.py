@@ -38,6 +38,7 @@ Wikipedia article "Fleiss' kappa" (kappa 0.210); statsmodels ``fleiss_kappa`` an
 
 from __future__ import annotations
 
+import contextlib
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -52,6 +53,7 @@ from .tables import (
     _normal_critical,
     _ones,
     _two_sided_p,
+    _weighted_var_of_mean,
     as_patterns,
 )
 
@@ -260,9 +262,10 @@ def fleiss_kappa(
     # An item's agreement a_i is exactly 1.0 when every rating is alike (and < 1 otherwise; 0
     # below two ratings), so this counts the items with two or more ratings all alike.
     all_alike = int(w @ (feats[:, 1] == 1.0))
-    pi = [x / n_rated for x in s_list[3 : 3 + k]] if n_rated else [math.nan] * k
+    pi_arr = sums[3 : 3 + k] / n_rated if n_rated else np.full(k, np.nan)
+    pi = pi_arr.tolist()
     pa = s_list[1] / n_pairable if n_pairable else math.nan
-    pe = math.fsum(x * x for x in pi) if n_rated else math.nan
+    pe = float(pi_arr @ pi_arr)
 
     notes: list[str] = []
     if n_unrated:
@@ -312,45 +315,44 @@ def fleiss_kappa(
         feats, w = feats[keep], w[keep]
     null_args = (float(n_pairable), float(n_rated), sum_inv_pairs, sum_inv_r_pairable,
                  float(n_single))
-    # Gwet's linearised variances, overall and per category, in one pass.  Each item's
-    # linearised value kappa*_i is linear in its feature row [e_i, a_i, u_i, pi_ij.., d_ij..]:
-    # kappa*_i = feats_i @ coef + const, so one small matrix product gives every column.
-    #   overall:  kappa*_i = R (a_i - pe e_i) / (1 - pe) - 2 (1 - kappa)(pe_i - pe) / (1 - pe),
-    #             pe_i = sum_j pi_ij pi_j, R = n_rated / n_pairable;
-    #   category j (the collapsed "j versus not j" table, item agreement e_i - 2 d_ij, chance
-    #   agreement pe_j = p_j^2 + q_j^2, pe_ij = q_j + pi_ij (p_j - q_j)):
-    #             kappa*_ij = R (e_i - 2 d_ij - pe_j e_i) / (1 - pe_j)
-    #                         - 2 (1 - kappa_j)(pe_ij - pe_j) / (1 - pe_j).
+    # Gwet's linearised variances over the rated items (patterns weighted), written exactly as
+    # the published per-item formulas so that degenerate data (e.g. perfect agreement) give an
+    # exact zero variance rather than rounding noise.
+    e_i = feats[:, 0]
+    pi_i = feats[:, 3 : 3 + k]
+    d_i = feats[:, 3 + k :]
     ratio = n_rated / n_pairable
-    coef = np.zeros((3 + 2 * k, 1 + k))
-    shift = [0.0] * (1 + k)
-    a_scale = ratio / (1.0 - pe)
-    b_scale = 2.0 * (1.0 - kappa) / (1.0 - pe)
-    coef[0, 0] = -a_scale * pe
-    coef[1, 0] = a_scale
-    coef[3 : 3 + k, 0] = [-b_scale * p for p in pi]
-    shift[0] = b_scale * pe - kappa
-    defined = [False] * k
-    for j, (p, kj) in enumerate(zip(pi, kappa_j, strict=True)):
-        if not math.isfinite(kj):
-            continue
-        q = 1.0 - p
-        pe_j = p * p + q * q
-        if not 1.0 - pe_j > 0.0:
-            continue
-        defined[j] = True
+    pe_i = pi_i @ pi_arr
+    # with every item pairable e_i is 1.0 everywhere, and x * 1.0 == x exactly
+    pe_e = pe if everyone_pairable else pe * e_i
+    kstar = ratio * (feats[:, 1] - pe_e) / (1.0 - pe) - 2.0 * (1.0 - kappa) * (
+        pe_i - pe
+    ) / (1.0 - pe)
+    # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table, whose
+    # item agreement is 1 - 2 d_ij and chance agreement p_j^2 + q_j^2.
+    qi = 1.0 - pi_arr
+    pe_j = pi_arr * pi_arr + qi * qi
+    kj_arr = np.array(kappa_j)
+    defined = [math.isfinite(x) for x in kappa_j]
+    # undefined categories (NaN kappa, chance agreement 1) would warn; their values are unused
+    quiet = all(defined) and n_rated >= 2
+    with contextlib.nullcontext() if quiet else np.errstate(divide="ignore", invalid="ignore"):
         inv = 1.0 / (1.0 - pe_j)
-        bj = 2.0 * (1.0 - kj) * inv
-        coef[0, 1 + j] = ratio * (1.0 - pe_j) * inv
-        coef[3 + j, 1 + j] = -bj * (p - q)
-        coef[3 + k + j, 1 + j] = -2.0 * ratio * inv
-        shift[1 + j] = -bj * (q - pe_j) - kj
-    dev = feats @ coef
-    dev += np.array(shift)
-    if n_rated >= 2:
-        var_all = ((w @ (dev * dev)) / (n_rated * (n_rated - 1.0))).tolist()
-    else:
-        var_all = [math.nan] * (1 + k)
+        if everyone_pairable:
+            a_ij = 1.0 - 2.0 * d_i
+            pe_je = pe_j
+        else:
+            a_ij = e_i[:, None] - 2.0 * d_i
+            pe_je = pe_j * e_i[:, None]
+        pe_ij = qi + pi_i * (pi_arr - qi)
+        kstar_j = ratio * (a_ij - pe_je) * inv - (
+            2.0 * (1.0 - kj_arr) * (pe_ij - pe_j) * inv
+        )
+        if n_rated >= 2:
+            var_j = ((w @ (kstar_j - kj_arr) ** 2) / (n_rated * (n_rated - 1.0))).tolist()
+        else:
+            var_j = [math.nan] * k
+    var_all = [_weighted_var_of_mean(kstar, w, kappa, n_rated), *var_j]
 
     var0 = _fnl_null_variance_one(pi, *null_args)
     overall = _estimate(

@@ -67,6 +67,18 @@ def _named_weights(k: int, kind: str | None) -> np.ndarray:
     return w
 
 
+@lru_cache(maxsize=64)
+def _named_total(k: int, kind: str | None) -> float:
+    return float(_named_weights(k, kind).sum())
+
+
+def _weights_total(weights: np.ndarray | str | None, w: np.ndarray) -> float:
+    """``w.sum()`` of validated weights, looked up once per (k, kind) for named weights."""
+    if weights is None or isinstance(weights, str):
+        return _named_total(w.shape[0], weights)
+    return float(w.sum())
+
+
 def _weights_iv(weights: np.ndarray | str | None, k: int) -> np.ndarray:
     if weights is None or isinstance(weights, str):
         return _named_weights(k, weights)
@@ -83,16 +95,18 @@ def _agreement_features(counts: np.ndarray, w: np.ndarray) -> np.ndarray:
     c = np.asarray(counts, dtype=np.float64)
     if c.ndim != 2 or c.shape[1] != w.shape[0]:
         raise ValueError(f"counts must be an items × {w.shape[0]} table, got shape {c.shape}")
-    return _features_m(c, w, c.sum(axis=1))
+    m = c.sum(axis=1)
+    return _features_m(c, w, m, bool(c.shape[0]) and bool(m.min() >= 2))
 
 
-def _features_m(c: np.ndarray, w: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """:func:`_agreement_features` of a float table ``c`` with row sums ``m``."""
+def _features_m(c: np.ndarray, w: np.ndarray, m: np.ndarray, all_pairable: bool) -> np.ndarray:
+    """:func:`_agreement_features` of a float table ``c`` with row sums ``m``; ``all_pairable``
+    says that every row has two or more ratings (and at least one row exists)."""
     out = np.empty((c.shape[0], 3 + c.shape[1]), dtype=np.float64)
-    if c.shape[0] and m.min() >= 2:  # fast path: every item has two or more ratings
-        out[:, 0] = 1.0
-        out[:, 1] = ((c * (c @ w.T - 1.0)) @ _ones(c.shape[1])) / (m * (m - 1.0))
-        out[:, 2] = 1.0
+    if all_pairable:  # fast path: every item has two or more ratings
+        out[:, 0:3:2] = 1.0
+        cw = c if w is _named_weights(c.shape[1], None) else c @ w.T  # c @ I is exactly c
+        out[:, 1] = ((c * (cw - 1.0)) @ _ones(c.shape[1])) / (m * (m - 1.0))
         np.divide(c, m[:, None], out=out[:, 3:])
         return out
     pairable = m >= 2
@@ -130,7 +144,8 @@ def gwet_ac_from_sums(sums: np.ndarray, *, weights: np.ndarray | str | None = No
     return _ac_from_sums(s, _weights_iv(weights, k))
 
 
-def _ac_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
+def _ac_from_sums(s: np.ndarray, w: np.ndarray, tw: float | None = None) -> np.ndarray:
+    """AC from sums with validated weights ``w`` (``tw`` = their total, if already known)."""
     k = w.shape[0]
     if k < 2:
         return np.full(s.shape[:-1], np.nan)
@@ -139,7 +154,8 @@ def _ac_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
         e1, a1, u1, *pi_list = s.tolist()
         if e1 <= 0 or u1 <= 0:
             return np.float64(np.nan)
-        pe1 = float(w.sum()) / (k * (k - 1)) * sum((x / u1) * (1.0 - x / u1) for x in pi_list)
+        tw1 = float(w.sum()) if tw is None else tw
+        pe1 = tw1 / (k * (k - 1)) * sum((x / u1) * (1.0 - x / u1) for x in pi_list)
         if 1.0 - pe1 <= _TINY:
             return np.float64(np.nan)
         return np.float64((a1 / e1 - pe1) / (1.0 - pe1))
@@ -188,7 +204,9 @@ def _bp_from_sums(s: np.ndarray, w: np.ndarray) -> np.ndarray:
 
 def _common(
     counts: np.ndarray | CountPatterns, weights: np.ndarray | str | None
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, list[str], dict[str, int]]:
+) -> tuple[
+    np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, list[str], dict[str, int], bool
+]:
     pat = as_patterns(counts)
     rows = pat.rows.astype(np.float64)
     mult = pat.multiplicity.astype(np.float64)
@@ -197,8 +215,9 @@ def _common(
     if w.shape != (k, k):
         raise ValueError(f"counts must be an items × {w.shape[0]} table, got shape {rows.shape}")
     m = rows @ _ones(k)  # ratings per pattern (exact: whole numbers)
-    feats = _features_m(rows, w, m)
-    if m.min() >= 2:
+    all_pairable = bool(m.shape[0]) and bool(m.min() >= 2)
+    feats = _features_m(rows, w, m, all_pairable)
+    if all_pairable:
         n_unrated = n_single = 0
     else:
         n_unrated = int(mult[m == 0].sum())
@@ -217,7 +236,7 @@ def _common(
         "items_unrated": n_unrated,
         "ratings": int(mult @ m),
     }
-    return rows, mult, w, feats, m, notes, counts_info
+    return rows, mult, w, feats, m, notes, counts_info, all_pairable
 
 
 def _one_category(name: str, value: float, extra: dict[str, object]) -> str:
@@ -285,16 +304,16 @@ def gwet_ac(
     random studies with identity, linear and quadratic weights.
     """
     level = _confidence_level_iv(confidence_level)
-    rows, mult, w, feats, m, notes, info = _common(counts, weights)
+    rows, mult, w, feats, m, notes, info, all_pairable = _common(counts, weights)
     k = rows.shape[1]
     name = "Gwet's AC1" if weights is None else "Gwet's AC2"
     sums = mult @ feats
-    value = float(_ac_from_sums(sums, w))
+    tw = _weights_total(weights, w)
+    value = float(_ac_from_sums(sums, w, tw))
     s_list = sums.tolist()
     info["items_pairable"] = int(s_list[0])
     n2, n_rated = s_list[0], int(s_list[2])
     pi = [x / n_rated for x in s_list[3:]] if n_rated else [math.nan] * k
-    tw = float(w.sum())
     pe = tw / (k * (k - 1)) * sum(p * (1 - p) for p in pi) if k > 1 else float("nan")
     pa = s_list[1] / n2 if n2 else float("nan")
     extra: dict[str, object] = {
@@ -314,15 +333,15 @@ def gwet_ac(
         return _finish(name, value, None, mult, n_rated, level, notes, why, extra)
     if info["items_unrated"]:
         keep = m >= 1
-        feats, mult = feats[keep], mult[keep]
-    # c*_i = (n / n_2)(a_i - p_e e_i) / (1 - p_e) - 2 (1 - c)(p_e,i - p_e) / (1 - p_e) with
-    # p_e,i = T_w / (q (q - 1)) sum_k (n_ik / r_i)(1 - pi_k): linear in the feature row
-    # [e_i, a_i, u_i, n_ik / r_i ..], so one matrix-vector product gives every c*_i.
-    a_scale = (n_rated / n2) / (1.0 - pe)
-    b_scale = 2.0 * (1.0 - value) / (1.0 - pe) * (tw / (k * (k - 1)))
-    coef = [-a_scale * pe, a_scale, 0.0, *(-b_scale * (1.0 - p) for p in pi)]
-    cstar = feats @ np.array(coef)
-    cstar += 2.0 * (1.0 - value) * pe / (1.0 - pe)
+        rows, m, feats, mult = rows[keep], m[keep], feats[keep], mult[keep]
+    # Gwet's linearised values, written exactly as the published per-item formula so that
+    # degenerate data (e.g. perfect agreement) give an exact zero variance, not rounding noise.
+    pi_arr = np.array(pi)
+    pe_i = tw / (k * (k - 1)) * (rows @ (1.0 - pi_arr)) / m
+    pe_e = pe if all_pairable else pe * feats[:, 0]  # x * 1.0 == x exactly
+    cstar = (n_rated / n2) * (feats[:, 1] - pe_e) / (1.0 - pe) - 2.0 * (1.0 - value) * (
+        pe_i - pe
+    ) / (1.0 - pe)
     return _finish(name, value, cstar, mult, n_rated, level, notes, None, extra)
 
 
@@ -337,14 +356,14 @@ def brennan_prediger(
     Validated against: irrCAC ``bp()`` on Fleiss (1971) data (0.444444) and random studies.
     """
     level = _confidence_level_iv(confidence_level)
-    rows, mult, w, feats, m, notes, info = _common(counts, weights)
+    rows, mult, w, feats, m, notes, info, all_pairable = _common(counts, weights)
     k = rows.shape[1]
     sums = mult @ feats
     value = float(_bp_from_sums(sums[:3], w))
     s_list = sums.tolist()
     info["items_pairable"] = int(s_list[0])
     n2, n_rated = s_list[0], int(s_list[2])
-    pe = float(w.sum()) / k**2
+    pe = _weights_total(weights, w) / k**2
     extra: dict[str, object] = {
         **info, "p_o": _finite_or_none(s_list[1] / n2) if n2 else None, "p_e": pe,
         "finite_population_correction": False,
@@ -361,6 +380,6 @@ def brennan_prediger(
     if info["items_unrated"]:
         keep = m >= 1
         feats, mult = feats[keep], mult[keep]
-    a_scale = (n_rated / n2) / (1.0 - pe)
-    cstar = feats[:, :2] @ np.array([-a_scale * pe, a_scale])
+    pe_e = pe if all_pairable else pe * feats[:, 0]  # x * 1.0 == x exactly
+    cstar = (n_rated / n2) * (feats[:, 1] - pe_e) / (1.0 - pe)
     return _finish("Brennan–Prediger", value, cstar, mult, n_rated, level, notes, None, extra)

@@ -82,7 +82,10 @@ def kendall_w(codes: np.ndarray | list[list[int]], *, confidence_level: float = 
         )
         c = c[:, complete]
     m, n = c.shape
-    agreeing = int(np.count_nonzero((c == c[0]).all(axis=0))) if m else 0
+    same = np.ones(n, dtype=bool)
+    for g in range(1, m):  # loop over raters, never over items (c may not be C-ordered here)
+        same &= c[g] == c[0]
+    agreeing = int(np.count_nonzero(same)) if m else 0
 
     def undefined(reason: str) -> Estimate:
         return Estimate(

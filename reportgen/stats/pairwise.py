@@ -34,7 +34,13 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .cohen import _categories_iv, _cohen_estimates, _kappa_from_tables, weights_iv
+from .cohen import (
+    _categories_iv,
+    _cohen_estimates,
+    _identity,
+    _kappa_from_tables,
+    weights_iv,
+)
 from .proportion import _confidence_level_iv
 from .results import Estimate
 from .tables import _ones
@@ -411,9 +417,16 @@ def _conger_sums(c: np.ndarray, k: int, w: np.ndarray) -> tuple[np.ndarray, int,
     multi = m >= 2
     dis = ones @ (((1.0 - w) @ counts) * counts)
     np.divide(dis, m * (m - 1.0), out=dis, where=multi)
-    dis[~multi] = 0.0
     items = int(np.count_nonzero(multi))
-    agreeing = int(np.count_nonzero(multi & (counts.max(axis=0) == m))) if items else 0
+    if items < multi.shape[0]:
+        dis[~multi] = 0.0
+    if not items:
+        agreeing = 0
+    elif w is _identity(k):
+        # unweighted: an item's disagreement sum_k r_k (r - r_k) is exactly 0 iff all alike
+        agreeing = int(np.count_nonzero(multi & (dis == 0.0)))
+    else:
+        agreeing = int(np.count_nonzero(multi & (counts.max(axis=0) == m)))
     sums = np.empty(2 + rater_counts.size)
     sums[0] = items
     sums[1] = dis.sum()
