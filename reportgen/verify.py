@@ -36,6 +36,8 @@ from typing import Any
 from .errors import InputError
 
 TOLERANCE = 1e-12
+#: the line every DRAFT report carries on its first page (templates/report.html)
+DRAFT_MARK = "DRAFT — built with --replace; not a released revision"
 #: measure keys the report prints as percentages (the report's own convention, templates/_macros.html)
 PERCENT_KEYS = frozenset({"agreement", "effectiveness", "miss_rate", "false_alarm_rate", "exact", "within_one_step", "exact_agreement", "within_one_agreement"})
 #: figures checked against the printed text: (section, measure); per-rater sections use every rater
@@ -64,6 +66,7 @@ class Verification:
     revision: int | None = None
     findings: list[Finding] = field(default_factory=list)
     seconds: float = 0.0
+    draft: bool = False  # the report says it is a DRAFT (built with --replace)
 
     @property
     def ok(self) -> bool:
@@ -78,6 +81,8 @@ class Verification:
     def format(self) -> str:
         who = f"{self.study_id} rev{self.revision}" if self.study_id else str(self.pdf)
         head = f"{self.pdf}: {who}: " + ("GENUINE — every check holds" if self.ok else "NOT GENUINE — see the failed checks")
+        if self.draft:
+            head += " (a DRAFT built with --replace, not a released revision)"
         lines = [head]
         for f in self.findings:
             lines.append(f"  {'ok  ' if f.ok else 'FAIL'}  {f.check}: {f.message}")
@@ -88,6 +93,7 @@ class Verification:
         return {
             "pdf": str(self.pdf),
             "genuine": self.ok,
+            "draft": self.draft,
             "study": {"id": self.study_id, "revision": self.revision},
             "findings": [
                 {"check": f.check, "ok": f.ok, "message": f.message, "details": list(f.details)} for f in self.findings
@@ -402,6 +408,7 @@ def verify_report(
     flat, squashed = _flat(text), _squash(text)
     report_id, report_rev = _identity_from_report(meta, flat)
     v.study_id, v.revision = report_id, report_rev
+    v.draft = DRAFT_MARK in flat
 
     # 1. signature
     from .sign import has_signature

@@ -94,3 +94,22 @@ def test_built_report_with_inputs_above_its_folder_is_genuine(tmp_path: Path) ->
     folder = build(study, tmp_path / "out")
     v = verify_report(folder / "LUG-CHECK-rev1.pdf")
     assert v.ok, v.format()
+
+
+@pytest.mark.slow
+@pytest.mark.render
+def test_a_draft_is_said_to_be_a_draft(tmp_path: Path) -> None:
+    """Defect: a report rebuilt with --replace verified as 'GENUINE — every check holds' with no
+    word that it is a DRAFT, not a released revision."""
+    from _built import GENERATED_AT
+
+    from reportgen.render.build import build_report
+
+    study = load_study(study_files(tmp_path / "study"))
+    build_report(study, output_dir=tmp_path / "out", generated_at=GENERATED_AT, pdf=False)
+    folder = build_report(study, output_dir=tmp_path / "out", generated_at=GENERATED_AT, replace=True)
+    v = verify_report(folder / "LUG-CHECK-rev1.pdf")
+    assert v.ok and v.draft and v.as_dict()["draft"] is True
+    assert v.format().splitlines()[0].endswith(
+        "GENUINE — every check holds (a DRAFT built with --replace, not a released revision)"
+    )

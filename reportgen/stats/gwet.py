@@ -336,8 +336,7 @@ def gwet_ac(
         rows, m, feats, mult = rows[keep], m[keep], feats[keep], mult[keep]
     # Gwet's linearised values, written exactly as the published per-item formula so that
     # degenerate data (e.g. perfect agreement) give an exact zero variance, not rounding noise.
-    pi_arr = np.array(pi)
-    pe_i = tw / (k * (k - 1)) * (rows @ (1.0 - pi_arr)) / m
+    pe_i = tw / (k * (k - 1)) * (rows @ np.array([1.0 - p for p in pi])) / m
     pe_e = pe if all_pairable else pe * feats[:, 0]  # x * 1.0 == x exactly
     cstar = (n_rated / n2) * (feats[:, 1] - pe_e) / (1.0 - pe) - 2.0 * (1.0 - value) * (
         pe_i - pe
