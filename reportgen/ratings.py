@@ -530,6 +530,37 @@ def _cell_text(v: Any) -> str:
     return iso() if callable(iso) else str(v)
 
 
+def _refuse_unsaved_formulas(raw: bytes, shown: str, title: str, header_line: int) -> None:
+    """A formula cell whose value was never saved (a workbook written by a script and not
+    opened in a spreadsheet program since) reads as blank: say so instead of 'blank cell'."""
+    import openpyxl
+    from openpyxl.utils import get_column_letter
+
+    wb = openpyxl.load_workbook(io.BytesIO(raw), read_only=True, data_only=False)
+    cached = openpyxl.load_workbook(io.BytesIO(raw), read_only=True, data_only=True)
+    try:
+        cells: list[str] = []
+        rows = zip(
+            wb[title].iter_rows(min_row=header_line, values_only=True),
+            cached[title].iter_rows(min_row=header_line, values_only=True),
+            strict=False,
+        )
+        for r, (formulas, values) in enumerate(rows, start=header_line):
+            for j, (f, v) in enumerate(zip(formulas, values, strict=False)):
+                if v is None and isinstance(f, str) and f.startswith("="):
+                    cells.append(f"{get_column_letter(j + 1)}{r}")
+    finally:
+        wb.close()
+        cached.close()
+    if cells:
+        more = f" and {len(cells) - 5} more" if len(cells) > 5 else ""
+        raise InputError.single(
+            shown,
+            f"formula cells with no saved value (read as blank): {', '.join(cells[:5])}{more}",
+            hint="open the workbook in a spreadsheet program and save it, or save the sheet as CSV",
+        )
+
+
 def _read_xlsx(p: Path, shown: str, sheet: str | None, what: str) -> Table:
     try:
         with zipfile.ZipFile(p) as zf:
@@ -587,6 +618,8 @@ def _read_xlsx(p: Path, shown: str, sheet: str | None, what: str) -> Table:
         title = ws.title
     finally:
         wb.close()
+    if header is not None and any(not t.strip() for row in rows for t in row[: len(header)]):
+        _refuse_unsaved_formulas(raw, shown, title, header_line)
     if header is None:
         raise InputError.single(
             shown,

@@ -218,3 +218,25 @@ def test_init_keeps_a_long_folder_name_within_the_id_limit(run_cli, tmp_path: Pa
     assert load_study(folder / "study.yaml").id == ("door-finish-" + "x" * 150)[:100]
     code, _, err = run_cli("init", tmp_path / "b", "--id", "Y" * 101)
     assert code == 2 and "at most 100 characters" in err
+
+
+def test_formula_cells_without_saved_values_are_named(make_study) -> None:
+    """Found with a workbook written by a script: a formula never computed by a spreadsheet
+    program has no saved value and was refused as a 'blank rating cell'."""
+    import io
+
+    import openpyxl
+
+    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["item", "rater", "trial", "rating"])
+    for k, (i, r, t, c) in enumerate(rows):
+        ws.append([i, r, t, '=IF(1,"P","S")' if k in (0, 4) else c])
+    buf = io.BytesIO()
+    wb.save(buf)
+    study = load_study(make_study(ratings="ratings.xlsx", files={"ratings.xlsx": buf.getvalue()}))
+    with pytest.raises(InputError) as exc:
+        load_ratings(study)
+    [p] = exc.value.problems()
+    assert p.message == "formula cells with no saved value (read as blank): D2, D6"

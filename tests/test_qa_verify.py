@@ -94,6 +94,7 @@ def test_built_report_with_inputs_above_its_folder_is_genuine(tmp_path: Path) ->
     folder = build(study, tmp_path / "out")
     v = verify_report(folder / "LUG-CHECK-rev1.pdf")
     assert v.ok, v.format()
+    assert not v.draft
 
 
 @pytest.mark.slow
