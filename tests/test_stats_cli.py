@@ -92,7 +92,7 @@ def test_summary_end_to_end(study_path: Path, capsys: pytest.CaptureFixture[str]
     code, out, err = run(["stats", str(study_path)], capsys)
     assert code == 0, err
     assert "Study CLI-TEST (revision 1)" in out
-    assert "Design: 4 items, 2 raters, 2 trial(s)" in out
+    assert "Design: 4 items, 2 raters, 2 trials" in out
     for heading in (
         "Rater repeatability",
         "Rater accuracy",

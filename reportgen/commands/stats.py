@@ -73,6 +73,10 @@ def _table(rows: list[list[str]]) -> list[str]:
     return out
 
 
+def _count(n: int, word: str) -> str:
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
+
+
 def format_summary(results: dict[str, Any]) -> str:
     """The terminal summary of a results dict (numbers rounded here, for reading only)."""
     lines: list[str] = []
@@ -84,7 +88,8 @@ def format_summary(results: dict[str, Any]) -> str:
     )
     cats = ", ".join(c["code"] for c in de["categories"])
     lines.append(
-        f"Design: {de['items']} items, {de['raters']} raters, {de['trials']} trial(s); "
+        f"Design: {_count(de['items'], 'item')}, {_count(de['raters'], 'rater')}, "
+        f"{_count(de['trials'], 'trial')}; "
         f"{de['scale']} scale with {len(de['categories'])} categories ({cats}); "
         f"{de['ratings']} ratings, {de['missing']} missing"
     )
