@@ -71,9 +71,17 @@ print(fk, alpha, ac1)
 """
 
 
-def make_campaign(folder: Path, *, seed: int, items: int = 100_000, raters: int = 20,
-                  k: int = 5, missing: float = 0.05, resamples: int = 2000,
-                  reference: bool = False) -> Path:
+def make_campaign(
+    folder: Path,
+    *,
+    seed: int,
+    items: int = 100_000,
+    raters: int = 20,
+    k: int = 5,
+    missing: float = 0.05,
+    resamples: int = 2000,
+    reference: bool = False,
+) -> Path:
     """Write study.yaml and ratings.csv (and reference.csv with ``reference``) of an invented
     labelling campaign."""
     rng = np.random.default_rng(seed)
@@ -85,8 +93,9 @@ def make_campaign(folder: Path, *, seed: int, items: int = 100_000, raters: int 
     u = rng.random(shape)
     step = rng.choice([-1, 1], size=shape)
     wild = rng.integers(0, k, size=shape)
-    codes = np.where(u < 0.75, truth[:, None],
-                     np.where(u < 0.95, np.clip(truth[:, None] + step, 0, k - 1), wild))
+    codes = np.where(
+        u < 0.75, truth[:, None], np.where(u < 0.95, np.clip(truth[:, None] + step, 0, k - 1), wild)
+    )
     present = rng.random(shape) >= missing
     ids = np.array([f"BAG-{i + 1:06d}" for i in range(items)])
     rater_ids = np.array([f"L{g + 1:02d}" for g in range(raters)])
@@ -128,8 +137,13 @@ def make_campaign(folder: Path, *, seed: int, items: int = 100_000, raters: int 
 def wall(cmd: list[str]) -> tuple[float, int]:
     """Wall time of a command (stdout discarded) and its own peak RSS in MB (Linux)."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, cwd=REPO,
-                            env={**os.environ, "CI": "1"})
+    proc = subprocess.Popen(
+        cmd,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.PIPE,
+        cwd=REPO,
+        env={**os.environ, "CI": "1"},
+    )
     assert proc.stderr is not None
     err = proc.stderr.read()
     _, status, usage = os.wait4(proc.pid, 0)
@@ -183,18 +197,32 @@ def typical_study_times(runs: int = 60) -> tuple[float, float, float]:
 
     def study(resamples: int) -> Study:
         return Study(
-            path=Path("/tmp/typical.yaml"), id="TYPICAL", title="typical study", purpose=None,
-            characteristic=None, station=None, revision=1, date=None, scale="ordinal",
+            path=Path("/tmp/typical.yaml"),
+            id="TYPICAL",
+            title="typical study",
+            purpose=None,
+            characteristic=None,
+            station=None,
+            revision=1,
+            date=None,
+            scale="ordinal",
             categories=tuple(Category(code=c, label=c) for c in "ABCD"),
             raters=tuple(Rater(id=f"R{i + 1}", name=f"R{i + 1}") for i in range(r)),
-            trials=t, ratings_path=Path("/tmp/typical.csv"), defect_category="D",
-            bootstrap_resamples=resamples, bootstrap_seed=7,
+            trials=t,
+            ratings_path=Path("/tmp/typical.csv"),
+            defect_category="D",
+            bootstrap_resamples=resamples,
+            bootstrap_seed=7,
         )
 
     with_boot, without = study(2000), study(0)
-    ratings = Ratings(items=tuple(f"I{i + 1}" for i in range(n)), raters=with_boot.rater_ids,
-                      categories=with_boot.category_codes, codes=codes,
-                      reference=truth.astype(np.int8))
+    ratings = Ratings(
+        items=tuple(f"I{i + 1}" for i in range(n)),
+        raters=with_boot.rater_ids,
+        categories=with_boot.category_codes,
+        codes=codes,
+        reference=truth.astype(np.int8),
+    )
 
     def cpu(st: Study) -> list[float]:
         analyse(st, ratings)
@@ -215,9 +243,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--seed", type=int, default=20261202)
     parser.add_argument("--keep", action="store_true", help="keep the generated files")
     parser.add_argument("--no-refs", action="store_true", help="our pipeline only")
-    parser.add_argument("--reference", action="store_true",
-                        help="also give every item a reference category (reference.csv), so "
-                             "that the accuracy figures are computed too")
+    parser.add_argument(
+        "--reference",
+        action="store_true",
+        help="also give every item a reference category (reference.csv), so "
+        "that the accuracy figures are computed too",
+    )
     parser.add_argument("--make", metavar="FOLDER", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.make:
@@ -235,9 +266,11 @@ def main(argv: list[str] | None = None) -> int:
         )
         study = folder / "study.yaml"
         n_lines = sum(1 for _ in open(folder / "ratings.csv", encoding="utf-8")) - 1
-        print(f"data: {folder} ({n_lines:,} ratings, "
-              f"{(folder / 'ratings.csv').stat().st_size / 1e6:.1f} MB, "
-              f"made in {time.perf_counter() - t0:.1f} s)")
+        print(
+            f"data: {folder} ({n_lines:,} ratings, "
+            f"{(folder / 'ratings.csv').stat().st_size / 1e6:.1f} MB, "
+            f"made in {time.perf_counter() - t0:.1f} s)"
+        )
         ref_script = folder / "reference_pipeline.py"
         ref_script.write_text(REFERENCE_PIPELINE, encoding="utf-8")
         ours_cmd = [PY, "-m", "reportgen", "stats", str(study), "--json"]
@@ -253,17 +286,29 @@ def main(argv: list[str] | None = None) -> int:
                 refs.append(wall(ref_cmd)[0])
         br = stages(study)
         lo, med, no_boot = typical_study_times()
-        print(f"typical study 50×3×3, every measure with 2,000-resample bootstrap: analyse() "
-              f"{lo:.1f} ms min, {med:.1f} ms median CPU (without the bootstrap {no_boot:.1f} ms)")
-        print(f"reportgen stats --json: median {statistics.median(ours):.2f} s, "
-              f"best {min(ours):.2f} s over {len(ours)} runs (peak RSS {peak} MB)")
+        print(
+            f"typical study 50×3×3, every measure with 2,000-resample bootstrap: analyse() "
+            f"{lo:.1f} ms min, {med:.1f} ms median CPU (without the bootstrap {no_boot:.1f} ms)"
+        )
+        print(
+            f"reportgen stats --json: median {statistics.median(ours):.2f} s, "
+            f"best {min(ours):.2f} s over {len(ours)} runs (peak RSS {peak} MB)"
+        )
         if refs:
-            print(f"reference pipeline (pandas + statsmodels + krippendorff + irrCAC, point "
-                  f"estimates only): median {statistics.median(refs):.2f} s, best {min(refs):.2f} s")
-            print(f"ratio reference / ours (medians): "
-                  f"{statistics.median(refs) / statistics.median(ours):.2f}")
-        print("our stages in process: " + ", ".join(
-            f"{k} {v:.2f} s" if k != "json_mb" else f"JSON {v:.0f} MB" for k, v in br.items()))
+            print(
+                f"reference pipeline (pandas + statsmodels + krippendorff + irrCAC, point "
+                f"estimates only): median {statistics.median(refs):.2f} s, best {min(refs):.2f} s"
+            )
+            print(
+                f"ratio reference / ours (medians): "
+                f"{statistics.median(refs) / statistics.median(ours):.2f}"
+            )
+        print(
+            "our stages in process: "
+            + ", ".join(
+                f"{k} {v:.2f} s" if k != "json_mb" else f"JSON {v:.0f} MB" for k, v in br.items()
+            )
+        )
     finally:
         if args.keep:
             print(f"kept {folder}")

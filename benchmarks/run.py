@@ -224,8 +224,9 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
             rt = best_time(ref_fn, budget=0.3, max_runs=3 if n >= 100_000 else 50)
             rows.append((size.name, name, t, t / floor, ref_name, rt, ratio(rt, t)))
     t_all = best_time(all_count_table)
-    rows.append((size.name, "all count-table coefficients, one pass", t_all, t_all / floor,
-                 "", None, ""))
+    rows.append(
+        (size.name, "all count-table coefficients, one pass", t_all, t_all / floor, "", None, "")
+    )
 
     # rater-identified measures (helper A), when present
     if pairwise_cohen is not None:
@@ -244,9 +245,17 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
                         )
 
             ref_t = best_time(sk_pairs, max_runs=3)
-        rows.append((size.name, "pairwise Cohen's kappa (all pairs)", t, t / floor,
-                     "sklearn cohen_kappa_score loop" if ref_t else "", ref_t,
-                     ratio(ref_t, t) if ref_t else ""))
+        rows.append(
+            (
+                size.name,
+                "pairwise Cohen's kappa (all pairs)",
+                t,
+                t / floor,
+                "sklearn cohen_kappa_score loop" if ref_t else "",
+                ref_t,
+                ratio(ref_t, t) if ref_t else "",
+            )
+        )
     if conger_kappa is not None:
         t = best_time(lambda: conger_kappa(first_trial, k))
         ref_t = None
@@ -255,9 +264,17 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
 
             df1 = pd.DataFrame(np.where(first_trial < 0, np.nan, first_trial.astype(float)))
             ref_t = best_time(lambda: CAC(df1, categories=cats).conger(), max_runs=3)
-        rows.append((size.name, "Conger's kappa", t, t / floor,
-                     "irrCAC conger()" if ref_t else "", ref_t,
-                     ratio(ref_t, t) if ref_t else ""))
+        rows.append(
+            (
+                size.name,
+                "Conger's kappa",
+                t,
+                t / floor,
+                "irrCAC conger()" if ref_t else "",
+                ref_t,
+                ratio(ref_t, t) if ref_t else "",
+            )
+        )
     if kendall_w is not None:
         t = best_time(lambda: kendall_w(first_trial))
         rows.append((size.name, "Kendall's W", t, t / floor, "", None, ""))
@@ -266,8 +283,11 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
     def fleiss_boot() -> object:
         pat = table()
         return bootstrap(
-            fleiss_kappa_features(pat.rows), fleiss_kappa_from_sums, resamples=resamples,
-            seed=1, multiplicity=pat.multiplicity,
+            fleiss_kappa_features(pat.rows),
+            fleiss_kappa_from_sums,
+            resamples=resamples,
+            seed=1,
+            multiplicity=pat.multiplicity,
         )
 
     def every_boot() -> object:
@@ -275,10 +295,15 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
         rows_ = pat.rows
         ff = fleiss_kappa_features(rows_)
         kf = krippendorff_alpha_features(rows_)
-        feats = {"fleiss": ff, "ac1": gwet_ac_features(rows_),
-                 "ac2": gwet_ac_features(rows_, weights="quadratic"),
-                 "bp": brennan_prediger_features(rows_),
-                 "alpha_nominal": kf, "alpha_ordinal": kf, "alpha_interval": kf}
+        feats = {
+            "fleiss": ff,
+            "ac1": gwet_ac_features(rows_),
+            "ac2": gwet_ac_features(rows_, weights="quadratic"),
+            "bp": brennan_prediger_features(rows_),
+            "alpha_nominal": kf,
+            "alpha_ordinal": kf,
+            "alpha_interval": kf,
+        }
         fns: dict[str, Callable[[np.ndarray], np.ndarray]] = {
             "fleiss": fleiss_kappa_from_sums,
             "ac1": gwet_ac_from_sums,
@@ -291,8 +316,9 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
         for j in range(k):
             feats[f"fleiss_{j}"] = ff
             fns[f"fleiss_{j}"] = lambda s, j=j: fleiss_kappa_by_category_from_sums(s)[..., j]
-        return bootstrap_many(feats, fns, resamples=resamples, seed=1,
-                              multiplicity=pat.multiplicity)
+        return bootstrap_many(
+            feats, fns, resamples=resamples, seed=1, multiplicity=pat.multiplicity
+        )
 
     t = best_time(fleiss_boot, budget=1.0, max_runs=5)
     ref_t, ref_label = None, ""
@@ -322,11 +348,29 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
         ref_t = best_time(ref_loop, max_runs=2) * resamples / loops
         if loops != resamples:
             ref_label += f" (extrapolated from {loops})"
-    rows.append((size.name, f"Fleiss bootstrap ({resamples}, BCa)", t, t / floor, ref_label,
-                 ref_t, ratio(ref_t, t) if ref_t else ""))
+    rows.append(
+        (
+            size.name,
+            f"Fleiss bootstrap ({resamples}, BCa)",
+            t,
+            t / floor,
+            ref_label,
+            ref_t,
+            ratio(ref_t, t) if ref_t else "",
+        )
+    )
     t = best_time(every_boot, budget=1.0, max_runs=3)
-    rows.append((size.name, f"every count-table coefficient bootstrapped ({resamples})", t,
-                 t / floor, "", None, ""))
+    rows.append(
+        (
+            size.name,
+            f"every count-table coefficient bootstrapped ({resamples})",
+            t,
+            t / floor,
+            "",
+            None,
+            "",
+        )
+    )
 
     peak = None
     if n >= 100_000:
@@ -337,8 +381,18 @@ def run_size(size: Size, *, resamples: int, with_refs: bool) -> tuple[list[Row],
         _, peak_bytes = tracemalloc.get_traced_memory()
         tracemalloc.stop()
         peak = peak_bytes / 2**20
-    rows.insert(0, (size.name, "floor: one np.bincount pass (items × categories)", floor, 1.0,
-                    f"patterns: {count_patterns(pooled, k).n_patterns}", None, ""))
+    rows.insert(
+        0,
+        (
+            size.name,
+            "floor: one np.bincount pass (items × categories)",
+            floor,
+            1.0,
+            f"patterns: {count_patterns(pooled, k).n_patterns}",
+            None,
+            "",
+        ),
+    )
     return rows, peak
 
 
@@ -349,19 +403,32 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--resamples", type=int, default=2000)
     args = parser.parse_args(argv)
     sizes = QUICK if args.quick else SIZES
-    print(f"python {platform.python_version()}, numpy {np.__version__}, {platform.machine()}, "
-          f"{platform.processor() or platform.system()}")
+    print(
+        f"python {platform.python_version()}, numpy {np.__version__}, {platform.machine()}, "
+        f"{platform.processor() or platform.system()}"
+    )
     header = ("size", "measure", "ours", "ours/floor", "reference", "ref time", "ref/ours")
     table: list[tuple[str, ...]] = [header]
     peaks = []
     for size in sizes:
         rows, peak = run_size(size, resamples=args.resamples, with_refs=not args.no_refs)
         for r in rows:
-            table.append((r[0], r[1], fmt(r[2]), f"{r[3]:.1f}" if r[3] else "", r[4],
-                          fmt(r[5]) if r[5] else "", r[6]))
+            table.append(
+                (
+                    r[0],
+                    r[1],
+                    fmt(r[2]),
+                    f"{r[3]:.1f}" if r[3] else "",
+                    r[4],
+                    fmt(r[5]) if r[5] else "",
+                    r[6],
+                )
+            )
         if peak is not None:
-            peaks.append(f"{size.name}: peak traced memory of all coefficients + every bootstrap"
-                         f" = {peak:.0f} MB (ratings array not included)")
+            peaks.append(
+                f"{size.name}: peak traced memory of all coefficients + every bootstrap"
+                f" = {peak:.0f} MB (ratings array not included)"
+            )
     widths = [max(len(row[i]) for row in table) for i in range(len(header))]
     for i, row in enumerate(table):
         print(" | ".join(cell.ljust(w) for cell, w in zip(row, widths, strict=True)))

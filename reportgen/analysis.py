@@ -173,9 +173,7 @@ TOO_LARGE_NO_INTERVAL = (
     "No interval: this coefficient has no published analytic interval, and an item bootstrap "
     "of it would be too large for this study (items × raters × resamples)."
 )
-TOO_LARGE_ANALYTIC = (
-    "The study is too large for an item bootstrap of this coefficient: its analytic interval is kept."
-)
+TOO_LARGE_ANALYTIC = "The study is too large for an item bootstrap of this coefficient: its analytic interval is kept."
 TOO_LARGE_COHEN = (
     "The study is too large for an item bootstrap of this kappa: its analytic interval "
     "treats the rater's repeated ratings of an item as independent and is too narrow."
@@ -407,8 +405,12 @@ def _fleiss(
 
 
 def _krippendorff(
-    pat: CountPatterns, level: str, values: np.ndarray | None, conf: float,
-    col: _Collector, group: str | None,
+    pat: CountPatterns,
+    level: str,
+    values: np.ndarray | None,
+    conf: float,
+    col: _Collector,
+    group: str | None,
 ) -> tuple[Estimate, BootSpec | None]:
     from .stats import krippendorff as kr
 
@@ -427,8 +429,11 @@ def _krippendorff(
 
 
 def _gwet(
-    pat: CountPatterns, weights: np.ndarray | None, conf: float,
-    col: _Collector, group: str | None,
+    pat: CountPatterns,
+    weights: np.ndarray | None,
+    conf: float,
+    col: _Collector,
+    group: str | None,
 ) -> tuple[Estimate, BootSpec | None]:
     from .stats import gwet
 
@@ -456,9 +461,7 @@ def _brennan_prediger(
     if group is None:
         return est, None
     k = pat.rows.shape[1]
-    col.groups[group].blocks.setdefault(
-        "bp", (3, lambda: gwet.brennan_prediger_features(pat.rows))
-    )
+    col.groups[group].blocks.setdefault("bp", (3, lambda: gwet.brennan_prediger_features(pat.rows)))
 
     def fn(s: np.ndarray) -> np.ndarray:
         return gwet.brennan_prediger_from_sums(s, k)
@@ -862,9 +865,7 @@ def _reproducibility(d: _Data, col: _Collector, caveats: dict[str, Any]) -> dict
     # the rater-pair tables (item × trial units) serve Light's kappa and the pairwise matrix
     tables = _try(lambda: pair_tables(d.units, d.k))
     out.update(
-        _multi_rater(
-            d, col, "reproducibility", d.pat, d.slots, d.units, tables, by_category=True
-        )
+        _multi_rater(d, col, "reproducibility", d.pat, d.slots, d.units, tables, by_category=True)
     )
     fl = out.get("_fleiss")
     out.pop("_fleiss", None)
@@ -1044,9 +1045,7 @@ def _panel_accuracy(d: _Data, col: _Collector) -> dict[str, Any]:
     return out
 
 
-def _ordinal(
-    d: _Data, col: _Collector, results: dict[str, Any] | None = None
-) -> dict[str, Any]:
+def _ordinal(d: _Data, col: _Collector, results: dict[str, Any] | None = None) -> dict[str, Any]:
     """Ordered-scale figures.  With ``results``, the exact and within-one-step agreement with
     the reference are also recorded as ``accuracy.<rater>.exact_agreement`` /
     ``within_one_agreement`` and ``panel_accuracy.exact_agreement`` / ``within_one_agreement``
@@ -1105,8 +1104,11 @@ def _ordinal(
         out["panel_accuracy"] = vs_ref(d.slots.astype(np.int64), "ordinal.panel_accuracy")
         if results is not None:
             targets = [
-                (results.get("accuracy", {}).get(rid), _path("ordinal", "accuracy", rid),
-                 _path("accuracy", rid))
+                (
+                    results.get("accuracy", {}).get(rid),
+                    _path("ordinal", "accuracy", rid),
+                    _path("accuracy", rid),
+                )
                 for rid in d.raters
             ]
             targets.append(
@@ -1281,8 +1283,11 @@ def _choose_groups(d: _Data, col: _Collector, resamples: int) -> list[str]:
     cells = 0
     for name in sorted(wanted, key=lambda g: (col.groups[g].priority, g)):
         grp = col.groups[name]
-        w = sum(bw for bname, (bw, _) in grp.blocks.items()
-                if any(b.group == name and b.block == bname for b in col.boot.values()))
+        w = sum(
+            bw
+            for bname, (bw, _) in grp.blocks.items()
+            if any(b.group == name and b.block == bname for b in col.boot.values())
+        )
         p = grp.multiplicity.shape[0]
         if label is None:
             new_label, new_cells = np.asarray(grp.inverse, dtype=np.int64), p
@@ -1355,9 +1360,13 @@ def _run_bootstrap(d: _Data, col: _Collector) -> dict[str, Any]:
         rec = col.boot[p].record
         # the analytic interval is replaced: a note that it was cut to the range no longer applies
         col.warnings = [
-            w for w in col.warnings
-            if not (w["measure"] == p and w["message"].startswith("The analytic interval of")
-                    and "was cut to the range" in w["message"])
+            w
+            for w in col.warnings
+            if not (
+                w["measure"] == p
+                and w["message"].startswith("The analytic interval of")
+                and "was cut to the range" in w["message"]
+            )
         ]
         rec["se"] = br.se
         rec["ci_low"] = br.ci_low
@@ -1393,13 +1402,16 @@ def _jsonable(x: Any, col: _Collector, path: tuple[Any, ...] = ()) -> Any:
         for key, v in x.items():
             key = key if type(key) is str else str(key)
             tv = type(v)
-            out[key] = v if tv in _PLAIN or (tv is float and math.isfinite(v)) else _jsonable(
-                v, col, (path, key)
+            out[key] = (
+                v
+                if tv in _PLAIN or (tv is float and math.isfinite(v))
+                else _jsonable(v, col, (path, key))
             )
         return out
     if t is list or t is tuple:
         return [
-            v if type(v) in _PLAIN or (type(v) is float and math.isfinite(v))
+            v
+            if type(v) in _PLAIN or (type(v) is float and math.isfinite(v))
             else _jsonable(v, col, path)
             for v in x
         ]
@@ -1413,9 +1425,7 @@ def _jsonable(x: Any, col: _Collector, path: tuple[Any, ...] = ()) -> Any:
         return _jsonable(float(x), col, path)
     if isinstance(x, str):
         return str(x)
-    raise TypeError(
-        f"results hold a value JSON cannot carry at {_spell(path)}: {type(x).__name__}"
-    )
+    raise TypeError(f"results hold a value JSON cannot carry at {_spell(path)}: {type(x).__name__}")
 
 
 def _spell(path: tuple[Any, ...]) -> str:

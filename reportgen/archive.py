@@ -222,7 +222,9 @@ def _study_yaml_facts(data: bytes, where: str) -> dict[str, Any]:
     try:
         doc = yaml.load(data.decode("utf-8-sig"), Loader=_Loader)  # noqa: S506 - safe subclass
     except (yaml.YAMLError, UnicodeDecodeError) as exc:
-        raise InputError.single(where, f"the attached study definition cannot be read: {exc}") from None
+        raise InputError.single(
+            where, f"the attached study definition cannot be read: {exc}"
+        ) from None
     if not isinstance(doc, dict):
         raise InputError.single(where, "the attached study definition is not a mapping")
     study = doc.get("study") if isinstance(doc.get("study"), dict) else {}
@@ -260,7 +262,9 @@ def _results_study_facts(results: dict[str, Any]) -> dict[str, Any]:
         "date": s.get("date"),
         "characteristic": s.get("characteristic"),
         "station": s.get("station"),
-        "scale": (results.get("design") or {}).get("scale") if isinstance(results.get("design"), dict) else None,
+        "scale": (results.get("design") or {}).get("scale")
+        if isinstance(results.get("design"), dict)
+        else None,
         "raters": raters,
     }
 
@@ -271,12 +275,15 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
 
     path = Path(revision_dir)
     if not path.is_dir():
-        raise InputError.single(path, "not a folder; give a built revision such as output/<study-id>/rev<N>")
+        raise InputError.single(
+            path, "not a folder; give a built revision such as output/<study-id>/rev<N>"
+        )
     m = _REV_RE.match(path.name)
     results_path = path / "results.json"
     if not results_path.is_file():
         raise InputError.single(
-            path, "no results.json here; this is not a built revision folder",
+            path,
+            "no results.json here; this is not a built revision folder",
             hint="run `reportgen build STUDY.yaml` first and archive output/<study-id>/rev<N>",
         )
     try:
@@ -288,7 +295,9 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
     study_id = str(results["study"].get("id") or "")
     revision = results["study"].get("revision")
     if not _ID_RE.match(study_id) or not isinstance(revision, int) or revision < 1:
-        raise InputError.single(results_path, "study.id / study.revision missing or invalid", key="study")
+        raise InputError.single(
+            results_path, "study.id / study.revision missing or invalid", key="study"
+        )
     if m is None or int(m.group(1)) != revision or path.resolve().parent.name != study_id:
         raise InputError.single(
             path,
@@ -299,16 +308,22 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
     for p in sorted(path.rglob("*")):
         rel = p.relative_to(path).as_posix()
         if p.is_symlink():
-            raise InputError.single(p, "symbolic links are not archived; the folder must hold plain files")
+            raise InputError.single(
+                p, "symbolic links are not archived; the folder must hold plain files"
+            )
         if p.is_file():
             if rel == ENTRY_NAME:
                 raise InputError.single(p, f"{ENTRY_NAME} is reserved for the archive")
             files[rel] = sha256_file(p)
     _check_manifest(path, files)
     html = path / f"{study_id}-rev{revision}.html"
-    if html.is_file() and '<body class="draft"' in html.read_text(encoding="utf-8", errors="replace")[:20000]:
+    if (
+        html.is_file()
+        and '<body class="draft"' in html.read_text(encoding="utf-8", errors="replace")[:20000]
+    ):
         raise InputError.single(
-            html, "this is a draft (built with --replace); drafts are not archived",
+            html,
+            "this is a draft (built with --replace); drafts are not archived",
             hint="raise study.revision in the study definition and build again",
         )
     pdf_name = f"{study_id}-rev{revision}.pdf"
@@ -322,7 +337,8 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
     attached = attachments.get("results.json")
     if attached is None:
         raise InputError.single(
-            pdf, "the report PDF carries no results.json attachment; it cannot be archived",
+            pdf,
+            "the report PDF carries no results.json attachment; it cannot be archived",
             hint="build the revision again with `reportgen build`",
         )
     if attached != results_path.read_bytes():
@@ -331,7 +347,9 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
             "differs from the results.json attached to the report PDF: the folder was changed after build",
             hint="rebuild the revision; do not archive a changed report",
         )
-    inputs = {name: sha256_bytes(data) for name, data in attachments.items() if name != "results.json"}
+    inputs = {
+        name: sha256_bytes(data) for name, data in attachments.items() if name != "results.json"
+    }
     facts = _results_study_facts(results)
     yaml_names = [n for n in attachments if n.lower().endswith((".yaml", ".yml"))]
     if yaml_names:
@@ -355,8 +373,10 @@ def _check_manifest(path: Path, files: dict[str, str]) -> None:
             digest, rel = parts[0].lower(), parts[1].lstrip("*").strip()
             if files.get(rel) != digest:
                 raise InputError.single(
-                    man, f"{rel}: the folder no longer matches the manifest written by build",
-                    line=n, hint="rebuild the revision; do not archive a changed report",
+                    man,
+                    f"{rel}: the folder no longer matches the manifest written by build",
+                    line=n,
+                    hint="rebuild the revision; do not archive a changed report",
                 )
 
 
@@ -442,7 +462,9 @@ def certification_summary(results: dict[str, Any], facts: dict[str, Any]) -> dic
         return {}
     names: dict[str, str] = facts.get("raters") or {}
     study_date = cert.get("study_date") or facts.get("date")
-    months = cert.get("valid_months") if isinstance(cert.get("valid_months"), int) else 12  # verdict's default
+    months = (
+        cert.get("valid_months") if isinstance(cert.get("valid_months"), int) else 12
+    )  # verdict's default
     window = cert.get("due_window_days")
     window = window if isinstance(window, int) else 30  # verdict.DEFAULT_DUE_WINDOW_DAYS
     out: dict[str, Any] = {}
@@ -515,7 +537,9 @@ class ArchiveEntry:
 
     def as_row(self) -> dict[str, Any]:
         return {
-            c: json.dumps(getattr(self, c), sort_keys=True) if c in _JSON_COLUMNS else getattr(self, c)
+            c: json.dumps(getattr(self, c), sort_keys=True)
+            if c in _JSON_COLUMNS
+            else getattr(self, c)
             for c in _COLUMNS
         }
 
@@ -552,7 +576,8 @@ def open_index(root: Path, *, create: bool) -> sqlite3.Connection:
     if not db.is_file():
         if not create:
             raise InputError.single(
-                root, "no archive here (no index.sqlite)",
+                root,
+                "no archive here (no index.sqlite)",
                 hint="archive a built revision first, or give --archive / REPORTGEN_ARCHIVE",
             )
         root.mkdir(parents=True, exist_ok=True)
@@ -563,7 +588,8 @@ def open_index(root: Path, *, create: bool) -> sqlite3.Connection:
                 for stmt in _split_sql(SCHEMA):
                     conn.execute(stmt)
                 conn.execute(
-                    "INSERT OR IGNORE INTO meta(key, value) VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),)
+                    "INSERT OR IGNORE INTO meta(key, value) VALUES ('schema_version', ?)",
+                    (str(SCHEMA_VERSION),),
                 )
         except sqlite3.DatabaseError as exc:
             conn.close()
@@ -587,7 +613,9 @@ def _split_sql(script: str) -> list[str]:
     for line in script.strip().splitlines():
         buf.append(line)
         text = "\n".join(buf).strip()
-        if text.endswith(";") and (not text.upper().startswith("CREATE TRIGGER") or text.upper().endswith("END;")):
+        if text.endswith(";") and (
+            not text.upper().startswith("CREATE TRIGGER") or text.upper().endswith("END;")
+        ):
             out.append(text)
             buf = []
     return out
@@ -605,7 +633,11 @@ def list_entries(
     try:
         sql = "SELECT * FROM revisions WHERE 1=1"
         args: list[Any] = []
-        for col, val in (("characteristic", characteristic), ("station", station), ("study_id", study_id)):
+        for col, val in (
+            ("characteristic", characteristic),
+            ("station", station),
+            ("study_id", study_id),
+        ):
             if val is not None:
                 sql += f" AND {col} = ? COLLATE NOCASE"
                 args.append(val)
@@ -613,7 +645,10 @@ def list_entries(
     finally:
         conn.close()
     entries = [ArchiveEntry.from_row(r) for r in rows]
-    return sorted(entries, key=lambda e: (e.study_date or e.archived_at[:10], e.study_id, e.revision, e.archived_at))
+    return sorted(
+        entries,
+        key=lambda e: (e.study_date or e.archived_at[:10], e.study_id, e.revision, e.archived_at),
+    )
 
 
 # --------------------------------------------------------------------------- archiving
@@ -648,7 +683,7 @@ def _remove_partial(path: Path) -> None:
 
 def _partial_is_abandoned(name: str) -> bool:
     # .partial-rev<N>-<host>-<pid>-<token>
-    parts = name[len(PARTIAL_PREFIX):].rsplit("-", 2)
+    parts = name[len(PARTIAL_PREFIX) :].rsplit("-", 2)
     if len(parts) != 3:
         return False
     head, pid_text, _token = parts
@@ -670,7 +705,10 @@ def _partial_is_abandoned(name: str) -> bool:
 def recover(conn: sqlite3.Connection, root: Path) -> list[str]:
     """Tidy up after interrupted runs; call inside a write transaction.  Returns what was done."""
     done: list[str] = []
-    known = {(r["study_id"], r["revision"]) for r in conn.execute("SELECT study_id, revision FROM revisions")}
+    known = {
+        (r["study_id"], r["revision"])
+        for r in conn.execute("SELECT study_id, revision FROM revisions")
+    }
     for study_dir in sorted(p for p in root.iterdir() if p.is_dir() and not p.name.startswith(".")):
         for sub in sorted(study_dir.iterdir()):
             if sub.name.startswith(PARTIAL_PREFIX) and sub.is_dir():
@@ -683,19 +721,27 @@ def recover(conn: sqlite3.Connection, root: Path) -> list[str]:
                 continue
             entry_file = sub / ENTRY_NAME
             if not entry_file.is_file():
-                done.append(f"ignored {sub.relative_to(root)}: no {ENTRY_NAME}, not made by reportgen archive")
+                done.append(
+                    f"ignored {sub.relative_to(root)}: no {ENTRY_NAME}, not made by reportgen archive"
+                )
                 continue
             try:
                 entry = ArchiveEntry(**json.loads(entry_file.read_text(encoding="utf-8")))
             except (ValueError, TypeError) as exc:
                 done.append(f"ignored {sub.relative_to(root)}: unreadable {ENTRY_NAME} ({exc})")
                 continue
-            bad = [rel for rel, h in entry.files.items() if not (sub / rel).is_file() or sha256_file(sub / rel) != h]
+            bad = [
+                rel
+                for rel, h in entry.files.items()
+                if not (sub / rel).is_file() or sha256_file(sub / rel) != h
+            ]
             if bad or entry.study_id != study_dir.name or entry.revision != int(m.group(1)):
                 done.append(f"ignored {sub.relative_to(root)}: its files do not match {ENTRY_NAME}")
                 continue
             _insert(conn, entry)
-            done.append(f"completed the interrupted archiving of {entry.study_id} rev{entry.revision}")
+            done.append(
+                f"completed the interrupted archiving of {entry.study_id} rev{entry.revision}"
+            )
     return done
 
 
@@ -717,7 +763,9 @@ def _copy_file(src: Path, dst: Path, expected: str) -> None:
         fo.flush()
         os.fsync(fo.fileno())
     if h.hexdigest() != expected or sha256_file(dst) != expected:
-        raise InputError.single(src, "the file changed while it was being archived; run archive again")
+        raise InputError.single(
+            src, "the file changed while it was being archived; run archive again"
+        )
     os.chmod(dst, 0o444)
 
 
@@ -785,11 +833,15 @@ def archive_revision(
                 if n == 0:
                     _test_pause("copy")
             entry_path = partial / ENTRY_NAME
-            entry_path.write_text(json.dumps(entry.__dict__, indent=2, sort_keys=True) + "\n", encoding="utf-8")
+            entry_path.write_text(
+                json.dumps(entry.__dict__, indent=2, sort_keys=True) + "\n", encoding="utf-8"
+            )
             with open(entry_path, "rb") as f:
                 os.fsync(f.fileno())
             os.chmod(entry_path, 0o444)
-            for d in sorted((p for p in partial.rglob("*") if p.is_dir()), key=lambda p: -len(p.parts)):
+            for d in sorted(
+                (p for p in partial.rglob("*") if p.is_dir()), key=lambda p: -len(p.parts)
+            ):
                 _fsync_dir(d)
                 os.chmod(d, 0o555)
             _fsync_dir(partial)
@@ -812,7 +864,8 @@ def archive_revision(
 
 def _refuse_existing(conn: sqlite3.Connection, root: Path, built: BuiltRevision) -> None:
     row = conn.execute(
-        "SELECT archived_at FROM revisions WHERE study_id = ? AND revision = ?", (built.study_id, built.revision)
+        "SELECT archived_at FROM revisions WHERE study_id = ? AND revision = ?",
+        (built.study_id, built.revision),
     ).fetchone()
     final = root / built.study_id / f"rev{built.revision}"
     if row is not None:
@@ -844,15 +897,23 @@ def write_output(path: str | Path, data: bytes, *, mode: int = 0o644) -> None:
     final = Path(path)
     folder = final.parent
     if final.exists() and is_read_only(final):
-        raise ExistsError(f"{final} is read-only (a built or archived report?); it is never overwritten — choose another file")
+        raise ExistsError(
+            f"{final} is read-only (a built or archived report?); it is never overwritten — choose another file"
+        )
     if folder.is_dir() and (is_read_only(folder) or (folder / ENTRY_NAME).exists()):
-        raise ExistsError(f"{folder} is a read-only folder (an archived revision?); nothing is written into it — choose another folder")
+        raise ExistsError(
+            f"{folder} is a read-only folder (an archived revision?); nothing is written into it — choose another folder"
+        )
     try:
         folder.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{final.name}.", suffix=".part")
     except OSError as exc:
         blocker = next((p for p in (folder, *folder.parents) if p.exists()), None)
-        why = f"{blocker} is a file, not a folder" if blocker and not blocker.is_dir() else (exc.strerror or str(exc))
+        why = (
+            f"{blocker} is a file, not a folder"
+            if blocker and not blocker.is_dir()
+            else (exc.strerror or str(exc))
+        )
         raise InputError.single(final, f"cannot write this file: {why}") from None
     try:
         with os.fdopen(fd, "wb") as f:

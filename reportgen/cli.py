@@ -52,7 +52,12 @@ class _LazyGroup(click.Group):
 
 @click.group(cls=_LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(package_name="reportgen")
-@click.option("--traceback", "show_traceback", is_flag=True, help="Show the Python traceback on internal errors.")
+@click.option(
+    "--traceback",
+    "show_traceback",
+    is_flag=True,
+    help="Show the Python traceback on internal errors.",
+)
 @click.pass_context
 def cli(ctx: click.Context, show_traceback: bool) -> None:
     """Attribute agreement studies for inspection: plan, check, analyse, judge, report, archive."""

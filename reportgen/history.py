@@ -96,7 +96,9 @@ class Shift:
         if self.overlap:
             verdict = "the intervals overlap, so this may be noise"
         else:
-            verdict = "the intervals do not overlap: the change is larger than the noise of either study"
+            verdict = (
+                "the intervals do not overlap: the change is larger than the noise of either study"
+            )
         tail = "; the item set changed here" if self.item_set_changed else ""
         return f"{who}{label} {direction} by {abs(self.change):.3f} from {self.before} to {self.after}: {verdict}{tail}."
 
@@ -124,7 +126,9 @@ class TrendSeries:
         out = []
         for p in self.points:
             rid = _rater_id(p.entry, name)
-            out.append(None if rid is None else p.entry.figures.get("raters", {}).get(rid, {}).get(measure))
+            out.append(
+                None if rid is None else p.entry.figures.get("raters", {}).get(rid, {}).get(measure)
+            )
         return out
 
 
@@ -176,7 +180,9 @@ def _shifts(series: TrendSeries) -> tuple[Shift, ...]:
                             after=series.points[i].label,
                             change=float(rec["estimate"]) - float(before["estimate"]),
                             overlap=overlap,
-                            item_set_changed=any(p.item_set_changed for p in series.points[j + 1 : i + 1]),
+                            item_set_changed=any(
+                                p.item_set_changed for p in series.points[j + 1 : i + 1]
+                            ),
                         )
                     )
             prev = (i, rec)
@@ -203,7 +209,15 @@ def build_history(entries: Sequence[ArchiveEntry]) -> list[TrendSeries]:
         display.setdefault(k, (characteristic, e.station))
     series: list[TrendSeries] = []
     for k in sorted(groups):
-        es = sorted(groups[k], key=lambda e: (e.study_date or e.archived_at[:10], e.study_id, e.revision, e.archived_at))
+        es = sorted(
+            groups[k],
+            key=lambda e: (
+                e.study_date or e.archived_at[:10],
+                e.study_id,
+                e.revision,
+                e.archived_at,
+            ),
+        )
         points: list[TrendPoint] = []
         for i, e in enumerate(es):
             later = sorted(r for r in latest_rev[e.study_id] if r > e.revision)
@@ -226,7 +240,9 @@ def build_history(entries: Sequence[ArchiveEntry]) -> list[TrendSeries]:
             )
         panel = tuple(m for m in PANEL_FIGURES if any(m in e.figures.get("panel", {}) for e in es))
         rater = tuple(
-            m for m in RATER_FIGURES if any(m in f for e in es for f in e.figures.get("raters", {}).values())
+            m
+            for m in RATER_FIGURES
+            if any(m in f for e in es for f in e.figures.get("raters", {}).values())
         )
         inspectors: dict[str, str] = {}
         for e in es:
@@ -272,7 +288,11 @@ def format_text(entries: Sequence[ArchiveEntry], series: Sequence[TrendSeries]) 
         lines.append(s.title)
         main = next((m for m in CHART_PANEL if m in s.panel_measures), None)
         for p, rec in zip(s.points, s.panel(main) if main else [None] * len(s.points), strict=True):
-            fig = f"{MEASURE_LABELS.get(main or '', main)} {fmt_estimate(rec)} ({fmt_ci(rec)})" if rec else ""
+            fig = (
+                f"{MEASURE_LABELS.get(main or '', main)} {fmt_estimate(rec)} ({fmt_ci(rec)})"
+                if rec
+                else ""
+            )
             marks = []
             if p.item_set_changed:
                 marks.append(f"new item set: +{p.items_added} / -{p.items_removed} items")
@@ -282,7 +302,8 @@ def format_text(entries: Sequence[ArchiveEntry], series: Sequence[TrendSeries]) 
                 marks.append("no study date: the archive date is shown")
             verdict = p.entry.verdict or "no verdict"
             lines.append(
-                f"  {p.date}  {p.label:<24} {verdict:<8} {fig}" + (f"  [{'; '.join(marks)}]" if marks else "")
+                f"  {p.date}  {p.label:<24} {verdict:<8} {fig}"
+                + (f"  [{'; '.join(marks)}]" if marks else "")
             )
         for sh in s.shifts:
             if not sh.overlap and sh.inspector is None:
@@ -304,14 +325,32 @@ def _mark_item_changes(ax: Any, s: TrendSeries, colour: str) -> None:
         if p.item_set_changed:
             ax.axvline(i - 0.5, color=colour, linestyle=(0, (4, 2)), linewidth=1.0)
             ax.annotate(
-                "new item set", xy=(i - 0.5, 1.0), xycoords=("data", "axes fraction"),
-                xytext=(2, -2), textcoords="offset points", fontsize=7, color=colour, va="top",
+                "new item set",
+                xy=(i - 0.5, 1.0),
+                xycoords=("data", "axes fraction"),
+                xytext=(2, -2),
+                textcoords="offset points",
+                fontsize=7,
+                color=colour,
+                va="top",
             )
 
 
-def _errorbars(ax: Any, xs: list[float], recs: list[dict[str, Any] | None], *, colour: str, marker: str,
-               label: str | None, hollow: list[bool]) -> None:
-    pts = [(x, r, h) for x, r, h in zip(xs, recs, hollow, strict=True) if r and r.get("estimate") is not None]
+def _errorbars(
+    ax: Any,
+    xs: list[float],
+    recs: list[dict[str, Any] | None],
+    *,
+    colour: str,
+    marker: str,
+    label: str | None,
+    hollow: list[bool],
+) -> None:
+    pts = [
+        (x, r, h)
+        for x, r, h in zip(xs, recs, hollow, strict=True)
+        if r and r.get("estimate") is not None
+    ]
     if not pts:
         return
     x = [p[0] for p in pts]
@@ -320,10 +359,24 @@ def _errorbars(ax: Any, xs: list[float], recs: list[dict[str, Any] | None], *, c
     for (xi, r, h), yi in zip(pts, y, strict=True):
         lo, hi = r.get("ci_low"), r.get("ci_high")
         if lo is not None and hi is not None:
-            ax.errorbar([xi], [yi], yerr=[[yi - float(lo)], [float(hi) - yi]], fmt="none",
-                        ecolor=colour, elinewidth=1.2, capsize=3)
-        ax.plot([xi], [yi], marker=marker, markersize=5.5, color=colour,
-                markerfacecolor="white" if h else colour, linestyle="none")
+            ax.errorbar(
+                [xi],
+                [yi],
+                yerr=[[yi - float(lo)], [float(hi) - yi]],
+                fmt="none",
+                ecolor=colour,
+                elinewidth=1.2,
+                capsize=3,
+            )
+        ax.plot(
+            [xi],
+            [yi],
+            marker=marker,
+            markersize=5.5,
+            color=colour,
+            markerfacecolor="white" if h else colour,
+            linestyle="none",
+        )
     if label:
         ax.plot([], [], marker=marker, color=colour, linestyle="-", linewidth=0.8, label=label)
 
@@ -337,7 +390,9 @@ def panel_chart(s: TrendSeries, index: int) -> Any:
     _style(plt, f"history-panel-{index}")
     cols = 2 if len(measures) > 2 else 1
     rows = max(1, -(-len(measures) // cols))
-    fig, axes = plt.subplots(rows, cols, figsize=(7.2, 2.1 * rows + 0.7), sharex=True, squeeze=False)
+    fig, axes = plt.subplots(
+        rows, cols, figsize=(7.2, 2.1 * rows + 0.7), sharex=True, squeeze=False
+    )
     xs = [float(i) for i in range(len(s.points))]
     hollow = [p.superseded_by is not None for p in s.points]
     flat = list(axes.flat)
@@ -346,7 +401,7 @@ def panel_chart(s: TrendSeries, index: int) -> Any:
         ax.set_title(MEASURE_LABELS.get(m, m), fontsize=8.5, loc="left", color=INK)
         ax.grid(axis="y", color=SLATE, alpha=0.15, linewidth=0.6)
         _mark_item_changes(ax, s, OCHRE)
-    for ax in flat[len(measures):]:
+    for ax in flat[len(measures) :]:
         ax.set_visible(False)
     for ax in axes[-1, :]:
         ax.set_xticks(xs)
@@ -373,7 +428,9 @@ def inspector_chart(s: TrendSeries, index: int) -> Any | None:
         return None
     plt = _plt()
     _style(plt, f"history-inspectors-{index}")
-    fig, axes = plt.subplots(len(measures), 1, figsize=(7.2, 2.2 * len(measures) + 0.8), sharex=True, squeeze=False)
+    fig, axes = plt.subplots(
+        len(measures), 1, figsize=(7.2, 2.2 * len(measures) + 0.8), sharex=True, squeeze=False
+    )
     colours = (INK, SLATE, OCHRE)
     markers = ("o", "s", "^", "D", "v", "P", "X", "*")
     k = len(s.inspectors)
@@ -383,8 +440,15 @@ def inspector_chart(s: TrendSeries, index: int) -> Any | None:
         for j, name in enumerate(s.inspectors):
             dodge = (j - (k - 1) / 2) * (width / max(k - 1, 1)) if k > 1 else 0.0
             xs = [i + dodge for i in range(len(s.points))]
-            _errorbars(ax, xs, s.inspector(name, m), colour=colours[j % 3], marker=markers[j % len(markers)],
-                       label=name if ax is axes[0, 0] else None, hollow=hollow)
+            _errorbars(
+                ax,
+                xs,
+                s.inspector(name, m),
+                colour=colours[j % 3],
+                marker=markers[j % len(markers)],
+                label=name if ax is axes[0, 0] else None,
+                hollow=hollow,
+            )
         ax.set_title(MEASURE_LABELS.get(m, m), fontsize=8.5, loc="left", color=INK)
         ax.grid(axis="y", color=SLATE, alpha=0.15, linewidth=0.6)
         _mark_item_changes(ax, s, OCHRE)
@@ -428,7 +492,9 @@ def render_history_html(
                     "verdict": p.entry.verdict,
                     "items": len(p.entry.items),
                     "item_note": (
-                        f"new item set (+{p.items_added} / −{p.items_removed})" if p.item_set_changed else ""
+                        f"new item set (+{p.items_added} / −{p.items_removed})"
+                        if p.item_set_changed
+                        else ""
                     ),
                     "superseded_by": p.superseded_by,
                     "panel": [p.entry.figures.get("panel", {}).get(m) for m in s.panel_measures],
@@ -439,7 +505,9 @@ def render_history_html(
             for m in s.rater_measures:
                 vals = s.inspector(name, m)
                 if any(v is not None for v in vals):
-                    inspector_rows.append({"inspector": name, "measure": MEASURE_LABELS.get(m, m), "values": vals})
+                    inspector_rows.append(
+                        {"inspector": name, "measure": MEASURE_LABELS.get(m, m), "values": vals}
+                    )
         blocks.append(
             {
                 "title": s.title,
@@ -455,7 +523,8 @@ def render_history_html(
         )
     superseded = {
         (e.study_id, e.revision): max(
-            (x.revision for x in entries if x.study_id == e.study_id and x.revision > e.revision), default=None
+            (x.revision for x in entries if x.study_id == e.study_id and x.revision > e.revision),
+            default=None,
         )
         for e in entries
     }
@@ -482,7 +551,14 @@ def render_history_html(
         filters={k: v for k, v in (filters or {}).items() if v},
         series=blocks,
         table=table,
-        confidence=next((e.figures.get("confidence_level") for e in entries if e.figures.get("confidence_level")), None),
+        confidence=next(
+            (
+                e.figures.get("confidence_level")
+                for e in entries
+                if e.figures.get("confidence_level")
+            ),
+            None,
+        ),
     )
 
 

@@ -123,7 +123,9 @@ class Ratings:
     raters: tuple[str, ...]  # rater ids, in study order
     categories: tuple[str, ...]  # category codes, in study order
     codes: np.ndarray  # int8, shape (n_items, n_raters, n_trials)
-    reference: np.ndarray | None = None  # int8 (n_items,), category index, -1 = none; None = no reference
+    reference: np.ndarray | None = (
+        None  # int8 (n_items,), category index, -1 = none; None = no reference
+    )
     sources: tuple[SourceFile, ...] = ()
     notes: tuple[str, ...] = ()  # things said while reading, e.g. "decoded as cp1252"
 

@@ -419,7 +419,9 @@ def _parse_stdlib(
                 hint='check this line for a stray " character',
             )
         else:
-            pc.add(shown, f"cannot read this line as CSV: {exc}", line=reader.line_num + first_line - 1)
+            pc.add(
+                shown, f"cannot read this line as CSV: {exc}", line=reader.line_num + first_line - 1
+            )
     pc.raise_if_any()
     if header is None:
         raise InputError.single(shown, "no header line", line=first_line)
@@ -859,13 +861,23 @@ def load_ratings(study: Study) -> Ratings:
         # a row whose item, rater or trial could not be read (reported where it is) may be
         # the rating of any cell it could stand for: those cells are not called absent too
         parts = (recs.item, recs.rater, recs.trial)
-        for known in ((True, True, False), (True, False, True), (False, True, True),
-                      (True, False, False), (False, True, False), (False, False, True)):
+        for known in (
+            (True, True, False),
+            (True, False, True),
+            (False, True, True),
+            (True, False, False),
+            (False, True, False),
+            (False, False, True),
+        ):
             sel = np.ones(len(recs.item), dtype=bool)
             for arr, k in zip(parts, known, strict=True):
                 sel &= (arr >= 0) == k
             if sel.any():
-                seen[tuple(arr[sel] if k else slice(None) for arr, k in zip(parts, known, strict=True))] = True
+                seen[
+                    tuple(
+                        arr[sel] if k else slice(None) for arr, k in zip(parts, known, strict=True)
+                    )
+                ] = True
         if (~ok_cell & (recs.item < 0) & (recs.rater < 0) & (recs.trial < 0)).any():
             seen[:] = True
         unexplained = absent & ~seen

@@ -122,7 +122,10 @@ def build_register(
     for (_n, _c), (rank, e, rid, c) in latest.items():
         window = due_within if due_within is not None else int(c.get("due_window_days") or 30)
         status, left = status_on(
-            outcome=str(c.get("outcome")), valid_until=c.get("valid_until"), as_of=as_of, due_within=window
+            outcome=str(c.get("outcome")),
+            valid_until=c.get("valid_until"),
+            as_of=as_of,
+            due_within=window,
         )
         lines.append(
             RegisterLine(
@@ -169,7 +172,16 @@ def _days(ln: RegisterLine) -> str:
 
 def format_table(reg: Register) -> str:
     """The register as a plain-text table for the terminal."""
-    head = ("Inspector", "Characteristic", "Latest outcome", "Certified on", "Valid until", "Status", "Ends", "Study")
+    head = (
+        "Inspector",
+        "Characteristic",
+        "Latest outcome",
+        "Certified on",
+        "Valid until",
+        "Status",
+        "Ends",
+        "Study",
+    )
     rows = [
         (
             ln.inspector,
@@ -183,7 +195,9 @@ def format_table(reg: Register) -> str:
         )
         for ln in reg.lines
     ]
-    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(head)]
+    widths = [
+        max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(head)
+    ]
     out = [
         "  ".join(h.ljust(w) for h, w in zip(head, widths, strict=True)).rstrip(),
         "  ".join("-" * w for w in widths),

@@ -53,7 +53,11 @@ class SignatureCheck:
                 f"signature '{self.field}' by {self.signer} ({when}) is intact but does NOT cover the whole file: "
                 "content was added after signing"
             )
-        trust = "certificate trusted" if self.trusted else "certificate not in the given trust list; check who the signer is"
+        trust = (
+            "certificate trusted"
+            if self.trusted
+            else "certificate not in the given trust list; check who the signer is"
+        )
         return f"signed by {self.signer} at {when}; intact, covers the whole file; {trust}"
 
 
@@ -66,11 +70,23 @@ def _load_signer(key: Path, passphrase: bytes | None):  # type: ignore[no-untype
         with _quiet_pyhanko():  # pyHanko logs a traceback for a wrong passphrase; we say it plainly
             signer = signers.SimpleSigner.load_pkcs12(str(key), passphrase=passphrase)
     except Exception as exc:  # noqa: BLE001 - pyHanko/cryptography raise many types here
-        hint = "give the passphrase with --passphrase-env VAR" if passphrase is None else "check the passphrase"
-        raise InputError.single(key, f"cannot read the PKCS#12 key file: {type(exc).__name__}: {exc}", hint=hint) from None
+        hint = (
+            "give the passphrase with --passphrase-env VAR"
+            if passphrase is None
+            else "check the passphrase"
+        )
+        raise InputError.single(
+            key, f"cannot read the PKCS#12 key file: {type(exc).__name__}: {exc}", hint=hint
+        ) from None
     if signer is None:
-        hint = "give the passphrase with --passphrase-env VAR" if passphrase is None else "check the passphrase"
-        raise InputError.single(key, "cannot read the PKCS#12 key file (wrong or missing passphrase?)", hint=hint)
+        hint = (
+            "give the passphrase with --passphrase-env VAR"
+            if passphrase is None
+            else "check the passphrase"
+        )
+        raise InputError.single(
+            key, "cannot read the PKCS#12 key file (wrong or missing passphrase?)", hint=hint
+        )
     return signer
 
 
@@ -95,7 +111,9 @@ def sign_report(
         raise InputError.single(src, "the report PDF does not exist")
     out = Path(output) if output else src.with_name(f"{src.stem}-signed.pdf")
     if out.exists():
-        raise ExistsError(f"{out} already exists; a signed report is never overwritten — choose another -o")
+        raise ExistsError(
+            f"{out} already exists; a signed report is never overwritten — choose another -o"
+        )
     signer = _load_signer(Path(key), passphrase)
     data = src.read_bytes()
     try:
@@ -141,12 +159,18 @@ def check_signatures(data: bytes, *, trust: tuple[Path, ...] = ()) -> list[Signa
         try:
             roots.append(load_cert_from_pemder(str(t)))
         except Exception as exc:  # noqa: BLE001
-            raise InputError.single(t, f"cannot read the certificate: {exc}", key="--trust") from None
+            raise InputError.single(
+                t, f"cannot read the certificate: {exc}", key="--trust"
+            ) from None
     ctx = ValidationContext(trust_roots=roots, allow_fetching=False)
     reader = PdfFileReader(io.BytesIO(data), strict=False)
     with _quiet_pyhanko():
-        return [_check_one(sig, ctx, validate_pdf_signature, SignatureValidationError, SignatureCoverageLevel)
-                for sig in reader.embedded_signatures]
+        return [
+            _check_one(
+                sig, ctx, validate_pdf_signature, SignatureValidationError, SignatureCoverageLevel
+            )
+            for sig in reader.embedded_signatures
+        ]
 
 
 @contextlib.contextmanager
@@ -177,7 +201,11 @@ def _check_one(sig: Any, ctx: Any, validate: Any, error: Any, coverage: Any) -> 
     when = status.signer_reported_dt
     reason = None
     try:
-        reason = str(sig.sig_object.get("/Reason")) if sig.sig_object.get("/Reason") is not None else None
+        reason = (
+            str(sig.sig_object.get("/Reason"))
+            if sig.sig_object.get("/Reason") is not None
+            else None
+        )
     except Exception:  # noqa: BLE001
         reason = None
     return SignatureCheck(

@@ -127,39 +127,228 @@ class MeasureInfo:
         return (0.0, 1.0) if self.kind == "proportion" or self.name == "kendall_w" else (-1.0, 1.0)
 
 
-def _m(group: str, name: str, label: str, kind: str, better: str = "higher", *needs: str) -> MeasureInfo:
+def _m(
+    group: str, name: str, label: str, kind: str, better: str = "higher", *needs: str
+) -> MeasureInfo:
     return MeasureInfo(group, name, label, kind, better, tuple(needs))  # type: ignore[arg-type]
 
 
 MEASURES: tuple[MeasureInfo, ...] = (
-    _m("repeatability", "agreement", "repeatability agreement rate", "proportion", "higher", "trials"),
-    _m("repeatability", "fleiss_kappa", "repeatability Fleiss' kappa", "coefficient", "higher", "trials"),
-    _m("accuracy", "agreement", "agreement rate with the reference", "proportion", "higher", "reference"),
+    _m(
+        "repeatability",
+        "agreement",
+        "repeatability agreement rate",
+        "proportion",
+        "higher",
+        "trials",
+    ),
+    _m(
+        "repeatability",
+        "fleiss_kappa",
+        "repeatability Fleiss' kappa",
+        "coefficient",
+        "higher",
+        "trials",
+    ),
+    _m(
+        "accuracy",
+        "agreement",
+        "agreement rate with the reference",
+        "proportion",
+        "higher",
+        "reference",
+    ),
     _m("accuracy", "effectiveness", "effectiveness", "proportion", "higher", "reference"),
-    _m("accuracy", "cohen_kappa", "Cohen's kappa against the reference", "coefficient", "higher", "reference"),
-    _m("accuracy", "weighted_kappa", "weighted kappa against the reference", "coefficient", "higher", "reference", "ordinal"),
+    _m(
+        "accuracy",
+        "cohen_kappa",
+        "Cohen's kappa against the reference",
+        "coefficient",
+        "higher",
+        "reference",
+    ),
+    _m(
+        "accuracy",
+        "weighted_kappa",
+        "weighted kappa against the reference",
+        "coefficient",
+        "higher",
+        "reference",
+        "ordinal",
+    ),
     _m("accuracy", "miss_rate", "miss rate", "proportion", "lower", "reference", "defect"),
-    _m("accuracy", "false_alarm_rate", "false alarm rate", "proportion", "lower", "reference", "defect"),
-    _m("accuracy", "exact_agreement", "exact agreement with the reference", "proportion", "higher", "reference", "ordinal"),
-    _m("accuracy", "within_one_agreement", "agreement within one step of the reference", "proportion", "higher", "reference", "ordinal"),
-    _m("accuracy", "kendall_tau_b", "Kendall's tau-b against the reference", "coefficient", "higher", "reference", "ordinal"),
-    _m("reproducibility", "agreement", "agreement rate among raters", "proportion", "higher", "raters"),
-    _m("reproducibility", "fleiss_kappa", "Fleiss' kappa among raters", "coefficient", "higher", "raters"),
-    _m("reproducibility", BY_CATEGORY, "Fleiss' kappa of category", "coefficient", "higher", "raters"),
-    _m("reproducibility", "krippendorff_alpha", "Krippendorff's alpha among raters", "coefficient", "higher", "raters"),
-    _m("reproducibility", "krippendorff_alpha_interval", "Krippendorff's alpha (interval) among raters", "coefficient", "higher", "raters", "values"),
+    _m(
+        "accuracy",
+        "false_alarm_rate",
+        "false alarm rate",
+        "proportion",
+        "lower",
+        "reference",
+        "defect",
+    ),
+    _m(
+        "accuracy",
+        "exact_agreement",
+        "exact agreement with the reference",
+        "proportion",
+        "higher",
+        "reference",
+        "ordinal",
+    ),
+    _m(
+        "accuracy",
+        "within_one_agreement",
+        "agreement within one step of the reference",
+        "proportion",
+        "higher",
+        "reference",
+        "ordinal",
+    ),
+    _m(
+        "accuracy",
+        "kendall_tau_b",
+        "Kendall's tau-b against the reference",
+        "coefficient",
+        "higher",
+        "reference",
+        "ordinal",
+    ),
+    _m(
+        "reproducibility",
+        "agreement",
+        "agreement rate among raters",
+        "proportion",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        "fleiss_kappa",
+        "Fleiss' kappa among raters",
+        "coefficient",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        BY_CATEGORY,
+        "Fleiss' kappa of category",
+        "coefficient",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        "krippendorff_alpha",
+        "Krippendorff's alpha among raters",
+        "coefficient",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        "krippendorff_alpha_interval",
+        "Krippendorff's alpha (interval) among raters",
+        "coefficient",
+        "higher",
+        "raters",
+        "values",
+    ),
     _m("reproducibility", "gwet_ac1", "Gwet's AC1 among raters", "coefficient", "higher", "raters"),
-    _m("reproducibility", "gwet_ac2", "Gwet's AC2 among raters", "coefficient", "higher", "raters", "ordinal"),
-    _m("reproducibility", "conger_kappa", "Conger's kappa among raters", "coefficient", "higher", "raters"),
-    _m("reproducibility", "light_kappa", "Light's kappa among raters", "coefficient", "higher", "raters"),
-    _m("reproducibility", "brennan_prediger", "Brennan-Prediger coefficient among raters", "coefficient", "higher", "raters"),
-    _m("reproducibility", "kendall_w", "Kendall's W among raters", "coefficient", "higher", "raters", "ordinal"),
-    _m("panel_accuracy", "agreement", "panel agreement rate with the reference", "proportion", "higher", "reference"),
-    _m("panel_accuracy", "effectiveness", "panel effectiveness", "proportion", "higher", "reference"),
-    _m("panel_accuracy", "exact_agreement", "panel exact agreement with the reference", "proportion", "higher", "reference", "ordinal"),
-    _m("panel_accuracy", "within_one_agreement", "panel agreement within one step of the reference", "proportion", "higher", "reference", "ordinal"),
-    _m("panel_accuracy", "miss_rate", "panel miss rate", "proportion", "lower", "reference", "defect"),
-    _m("panel_accuracy", "false_alarm_rate", "panel false alarm rate", "proportion", "lower", "reference", "defect"),
+    _m(
+        "reproducibility",
+        "gwet_ac2",
+        "Gwet's AC2 among raters",
+        "coefficient",
+        "higher",
+        "raters",
+        "ordinal",
+    ),
+    _m(
+        "reproducibility",
+        "conger_kappa",
+        "Conger's kappa among raters",
+        "coefficient",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        "light_kappa",
+        "Light's kappa among raters",
+        "coefficient",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        "brennan_prediger",
+        "Brennan-Prediger coefficient among raters",
+        "coefficient",
+        "higher",
+        "raters",
+    ),
+    _m(
+        "reproducibility",
+        "kendall_w",
+        "Kendall's W among raters",
+        "coefficient",
+        "higher",
+        "raters",
+        "ordinal",
+    ),
+    _m(
+        "panel_accuracy",
+        "agreement",
+        "panel agreement rate with the reference",
+        "proportion",
+        "higher",
+        "reference",
+    ),
+    _m(
+        "panel_accuracy",
+        "effectiveness",
+        "panel effectiveness",
+        "proportion",
+        "higher",
+        "reference",
+    ),
+    _m(
+        "panel_accuracy",
+        "exact_agreement",
+        "panel exact agreement with the reference",
+        "proportion",
+        "higher",
+        "reference",
+        "ordinal",
+    ),
+    _m(
+        "panel_accuracy",
+        "within_one_agreement",
+        "panel agreement within one step of the reference",
+        "proportion",
+        "higher",
+        "reference",
+        "ordinal",
+    ),
+    _m(
+        "panel_accuracy",
+        "miss_rate",
+        "panel miss rate",
+        "proportion",
+        "lower",
+        "reference",
+        "defect",
+    ),
+    _m(
+        "panel_accuracy",
+        "false_alarm_rate",
+        "panel false alarm rate",
+        "proportion",
+        "lower",
+        "reference",
+        "defect",
+    ),
 )
 _MEASURE_INDEX: dict[tuple[str, str], MeasureInfo] = {(m.group, m.name): m for m in MEASURES}
 
@@ -241,7 +430,9 @@ class Rule:
     index: int  # 1-based position in the rule list (or in the shipped set)
     measure: str  # as written (or as shipped)
     info: MeasureInfo
-    target: str | None  # None (panel), "*" (every rater) or a rater id; a category code for by-category
+    target: (
+        str | None
+    )  # None (panel), "*" (every rater) or a rater id; a category code for by-category
     pass_level: float
     marginal_level: float | None
     better: Better
@@ -332,7 +523,12 @@ BINARY_INSPECTION = CriteriaSet(
     rules=(
         {"measure": "accuracy.*.effectiveness", "pass": 0.90, "marginal": 0.80},
         {"measure": "accuracy.*.miss_rate", "pass": 0.02, "marginal": 0.05, "better": "lower"},
-        {"measure": "accuracy.*.false_alarm_rate", "pass": 0.05, "marginal": 0.10, "better": "lower"},
+        {
+            "measure": "accuracy.*.false_alarm_rate",
+            "pass": 0.05,
+            "marginal": 0.10,
+            "better": "lower",
+        },
     ),
 )
 
@@ -354,8 +550,13 @@ MISS_RATE_BOUND = CriteriaSet(
         "optimistic: size the study on distinct defect items."
     ),
     rules=(
-        {"measure": "accuracy.*.miss_rate", "pass": "$limit", "better": "lower",
-         "judge": "upper_bound", "confidence": "$confidence"},
+        {
+            "measure": "accuracy.*.miss_rate",
+            "pass": "$limit",
+            "better": "lower",
+            "judge": "upper_bound",
+            "confidence": "$confidence",
+        },
     ),
     params={"limit": 0.05, "confidence": 0.95},
 )
@@ -411,20 +612,28 @@ class _Parser:
         self.study = study
         self.results = results
         if has_reference is None and results is not None:
-            has_reference = isinstance(results.get("accuracy"), Mapping) and bool(results["accuracy"])
+            has_reference = isinstance(results.get("accuracy"), Mapping) and bool(
+                results["accuracy"]
+            )
         if has_reference is None and study.reference_path is not None:
             has_reference = True
         self.has_reference = has_reference
         self.problems: list[Problem] = []
 
     # -- messages ---------------------------------------------------------------------------
-    def error(self, keys: Sequence[Any], message: str, hint: str | None = None, *, severity: str = "error") -> None:
+    def error(
+        self, keys: Sequence[Any], message: str, hint: str | None = None, *, severity: str = "error"
+    ) -> None:
         loc = self.study.locate(*keys)
         self.problems.append(
-            Problem(Location(loc.path, loc.line, loc.column, _format_key(keys)), message, hint, severity)
+            Problem(
+                Location(loc.path, loc.line, loc.column, _format_key(keys)), message, hint, severity
+            )
         )
 
-    def unknown_keys(self, keys: Sequence[Any], data: Mapping[str, Any], allowed: Sequence[str]) -> None:
+    def unknown_keys(
+        self, keys: Sequence[Any], data: Mapping[str, Any], allowed: Sequence[str]
+    ) -> None:
         for k in sorted(data, key=str):
             if k in allowed:
                 continue
@@ -434,7 +643,11 @@ class _Parser:
 
     # -- values -----------------------------------------------------------------------------
     def number(self, keys: Sequence[Any], value: Any) -> float | None:
-        if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        if (
+            isinstance(value, bool)
+            or not isinstance(value, int | float)
+            or not math.isfinite(value)
+        ):
             self.error(keys, f"must be a number, got {value!r}")
             return None
         return float(value)
@@ -450,7 +663,11 @@ class _Parser:
         return str(value)
 
     def marginal_is(self, keys: Sequence[Any], value: Any) -> Literal["pass", "improve"]:
-        return "pass" if self.choice(keys, value, ("improve", "pass"), "improve") == "pass" else "improve"
+        return (
+            "pass"
+            if self.choice(keys, value, ("improve", "pass"), "improve") == "pass"
+            else "improve"
+        )
 
     # -- measures ---------------------------------------------------------------------------
     def applicable(self, *, per_rater_only: bool = False) -> list[str]:
@@ -464,9 +681,9 @@ class _Parser:
     ) -> tuple[MeasureInfo, str | None] | None:
         """Resolve a measure path; ``None`` (and a problem) when unknown or not applicable."""
         listing = self.applicable(per_rater_only=certification)
-        shown = ", ".join(
-            (m.replace(".*.", ".") if certification else m) for m in listing
-        ) or "none"
+        shown = (
+            ", ".join((m.replace(".*.", ".") if certification else m) for m in listing) or "none"
+        )
         hint = f"measures that apply to this study: {shown}"
         if not isinstance(text, str) or not text.strip():
             self.error(keys, "must name a measure, e.g. 'reproducibility.fleiss_kappa'", hint)
@@ -481,36 +698,55 @@ class _Parser:
             info = _MEASURE_INDEX.get((group, name))
             if info is not None:
                 if certification and middle not in ("", "*"):
-                    self.error(keys, f"certification rules apply to every inspector; write "
-                               f"'{group}.{name}' without the rater '{middle}'")
+                    self.error(
+                        keys,
+                        f"certification rules apply to every inspector; write "
+                        f"'{group}.{name}' without the rater '{middle}'",
+                    )
                     return None
                 if middle == "" and not certification:
-                    self.error(keys, f"'{text}' needs a rater: '{group}.*.{name}' for every rater "
-                               f"or '{group}.<rater>.{name}' for one")
+                    self.error(
+                        keys,
+                        f"'{text}' needs a rater: '{group}.*.{name}' for every rater "
+                        f"or '{group}.<rater>.{name}' for one",
+                    )
                     return None
                 target = "*" if middle in ("", "*") else middle
                 if target != "*" and target not in self.study.rater_ids:
-                    self.error(keys, f"unknown rater '{target}' in '{text}'",
-                               f"raters of this study: {', '.join(self.study.rater_ids)}")
+                    self.error(
+                        keys,
+                        f"unknown rater '{target}' in '{text}'",
+                        f"raters of this study: {', '.join(self.study.rater_ids)}",
+                    )
                     return None
         elif group in GROUPS and len(parts) >= 2:
             if parts[1] == BY_CATEGORY and len(parts) >= 3:
                 info = _MEASURE_INDEX[(group, BY_CATEGORY)]
                 target = ".".join(parts[2:])
                 if target != "*" and target not in self.study.category_codes:
-                    self.error(keys, f"unknown category '{target}' in '{text}'",
-                               f"categories of this study: {', '.join(self.study.category_codes)}")
+                    self.error(
+                        keys,
+                        f"unknown category '{target}' in '{text}'",
+                        f"categories of this study: {', '.join(self.study.category_codes)}",
+                    )
                     return None
             elif len(parts) == 2:
                 info = _MEASURE_INDEX.get((group, parts[1]))
         if info is None:
             close = difflib.get_close_matches(text.strip(), listing, n=1)
-            self.error(keys, f"unknown measure '{text}'",
-                       (f"did you mean '{close[0]}'? " if close else "") + hint)
+            self.error(
+                keys,
+                f"unknown measure '{text}'",
+                (f"did you mean '{close[0]}'? " if close else "") + hint,
+            )
             return None
         if certification and not info.per_rater:
-            self.error(keys, f"'{text}' is a figure of the whole panel; certification rules use "
-                       f"each inspector's own figures", hint)
+            self.error(
+                keys,
+                f"'{text}' is a figure of the whole panel; certification rules use "
+                f"each inspector's own figures",
+                hint,
+            )
             return None
         if info.pattern not in listing:
             why = _why_absent(self.study, info, self.has_reference)
@@ -527,26 +763,38 @@ class _Parser:
         self, keys: Sequence[Any], data: Any, index: int, *, certification: bool = False
     ) -> Rule | None:
         if not isinstance(data, Mapping):
-            self.error(keys, "a rule must be a mapping with 'measure' and 'pass'",
-                       "e.g. {measure: reproducibility.fleiss_kappa, pass: 0.75, marginal: 0.40}")
+            self.error(
+                keys,
+                "a rule must be a mapping with 'measure' and 'pass'",
+                "e.g. {measure: reproducibility.fleiss_kappa, pass: 0.75, marginal: 0.40}",
+            )
             return None
         self.unknown_keys(keys, data, RULE_KEYS)
         ok = True
         if "measure" not in data:
             self.error(keys, "missing key 'measure'", "name the measure this rule judges")
             return None
-        resolved = self.measure([*keys, "measure"], data.get("measure"), certification=certification)
+        resolved = self.measure(
+            [*keys, "measure"], data.get("measure"), certification=certification
+        )
         if resolved is None:
             return None
         info, target = resolved
         better_default = info.better
         better_raw = data.get("better")
-        better: Better = "lower" if self.choice([*keys, "better"], better_raw, ("higher", "lower"),
-                                                 better_default) == "lower" else "higher"
+        better: Better = (
+            "lower"
+            if self.choice([*keys, "better"], better_raw, ("higher", "lower"), better_default)
+            == "lower"
+            else "higher"
+        )
         if better_raw in ("higher", "lower") and better != info.better:
-            self.error([*keys, "better"],
-                       f"for the {info.label}, {info.better} is better; 'better: {better}' would "
-                       f"reward the wrong direction", f"write 'better: {info.better}' or leave it out")
+            self.error(
+                [*keys, "better"],
+                f"for the {info.label}, {info.better} is better; 'better: {better}' would "
+                f"reward the wrong direction",
+                f"write 'better: {info.better}' or leave it out",
+            )
             ok = False
         judge: Judge = self.choice([*keys, "judge"], data.get("judge"), JUDGES, "estimate")  # type: ignore[assignment]
         if "pass" not in data:
@@ -563,21 +811,27 @@ class _Parser:
         lo, hi = info.bounds
         for name, level in (("pass", pass_level), ("marginal", marginal_level)):
             if level is not None and not (lo <= level <= hi):
-                self.error([*keys, name], f"{level:g} is outside the range of the {info.label} "
-                           f"({lo:g} to {hi:g})")
+                self.error(
+                    [*keys, name],
+                    f"{level:g} is outside the range of the {info.label} ({lo:g} to {hi:g})",
+                )
                 ok = False
         if marginal_level is not None:
             if better == "higher" and not marginal_level < pass_level:
-                self.error([*keys, "marginal"],
-                           f"with 'better: higher' the marginal level ({marginal_level:g}) must be "
-                           f"below the pass level ({pass_level:g})",
-                           "leave 'marginal' out for a rule without a marginal band")
+                self.error(
+                    [*keys, "marginal"],
+                    f"with 'better: higher' the marginal level ({marginal_level:g}) must be "
+                    f"below the pass level ({pass_level:g})",
+                    "leave 'marginal' out for a rule without a marginal band",
+                )
                 ok = False
             if better == "lower" and not marginal_level > pass_level:
-                self.error([*keys, "marginal"],
-                           f"with 'better: lower' the marginal level ({marginal_level:g}) must be "
-                           f"above the pass level ({pass_level:g})",
-                           "leave 'marginal' out for a rule without a marginal band")
+                self.error(
+                    [*keys, "marginal"],
+                    f"with 'better: lower' the marginal level ({marginal_level:g}) must be "
+                    f"above the pass level ({pass_level:g})",
+                    "leave 'marginal' out for a rule without a marginal band",
+                )
                 ok = False
         confidence = None
         if data.get("confidence") is not None:
@@ -588,31 +842,39 @@ class _Parser:
                 self.error([*keys, "confidence"], f"must lie between 0.5 and 1, got {confidence:g}")
                 ok = False
             elif judge == "estimate":
-                self.error([*keys, "confidence"],
-                           "a stated confidence needs 'judge: lower_bound' or 'judge: upper_bound'")
+                self.error(
+                    [*keys, "confidence"],
+                    "a stated confidence needs 'judge: lower_bound' or 'judge: upper_bound'",
+                )
                 ok = False
             elif info.kind != "proportion":
-                self.error([*keys, "confidence"],
-                           f"a one-sided bound at a stated confidence is computed from counts, for "
-                           f"rates and agreement shares only; the {info.label} is not one",
-                           "leave 'confidence' out to judge the study's interval")
+                self.error(
+                    [*keys, "confidence"],
+                    f"a one-sided bound at a stated confidence is computed from counts, for "
+                    f"rates and agreement shares only; the {info.label} is not one",
+                    "leave 'confidence' out to judge the study's interval",
+                )
                 ok = False
         if judge != "estimate" and confidence is None and self.results is not None:
             if not _has_interval(self.results, info, target):
-                self.error([*keys, "judge"],
-                           f"'judge: {judge}' needs an interval, and the {info.label} has none in "
-                           f"the results of this study",
-                           "judge the estimate, or give the study bootstrap resamples")
+                self.error(
+                    [*keys, "judge"],
+                    f"'judge: {judge}' needs an interval, and the {info.label} has none in "
+                    f"the results of this study",
+                    "judge the estimate, or give the study bootstrap resamples",
+                )
                 ok = False
         if judge != "estimate":
             optimistic = (judge == "upper_bound") == (better == "higher")
             if optimistic:
                 safer = "lower_bound" if better == "higher" else "upper_bound"
-                self.error([*keys, "judge"],
-                           f"'judge: {judge}' gives the {info.label} the benefit of the doubt "
-                           f"(the favourable end of the interval)",
-                           f"'judge: {safer}' asks the study to show the level with confidence",
-                           severity="warning")
+                self.error(
+                    [*keys, "judge"],
+                    f"'judge: {judge}' gives the {info.label} the benefit of the doubt "
+                    f"(the favourable end of the interval)",
+                    f"'judge: {safer}' asks the study to show the level with confidence",
+                    severity="warning",
+                )
         note = data.get("note")
         if note is not None and not isinstance(note, str):
             self.error([*keys, "note"], "must be text")
@@ -634,8 +896,11 @@ class _Parser:
 
     def rules(self, keys: Sequence[Any], data: Any, *, certification: bool = False) -> list[Rule]:
         if not isinstance(data, list) or not data:
-            self.error(keys, "must be a non-empty list of rules",
-                       "e.g. - {measure: reproducibility.fleiss_kappa, pass: 0.75, marginal: 0.40}")
+            self.error(
+                keys,
+                "must be a non-empty list of rules",
+                "e.g. - {measure: reproducibility.fleiss_kappa, pass: 0.75, marginal: 0.40}",
+            )
             return []
         out = []
         for i, item in enumerate(data):
@@ -648,25 +913,33 @@ class _Parser:
     def criteria(self, data: Any) -> Criteria | None:
         keys: list[Any] = ["criteria"]
         if not isinstance(data, Mapping):
-            self.error(keys, "must be a mapping with 'source' and 'rules', or {set: NAME}",
-                       f"shipped sets: {', '.join(sorted(CRITERIA_SETS))}")
+            self.error(
+                keys,
+                "must be a mapping with 'source' and 'rules', or {set: NAME}",
+                f"shipped sets: {', '.join(sorted(CRITERIA_SETS))}",
+            )
             return None
         if "set" in data:
             return self.criteria_set(keys, data)
         self.unknown_keys(keys, data, CRITERIA_KEYS)
         source = data.get("source")
         if not isinstance(source, str) or not source.strip():
-            self.error([*keys, "source"] if "source" in data else keys,
-                       "say where these acceptance levels come from" if "source" not in data
-                       else "must be text naming where the levels come from",
-                       "e.g. source: \"Customer requirement CR-7, section 4\"")
+            self.error(
+                [*keys, "source"] if "source" in data else keys,
+                "say where these acceptance levels come from"
+                if "source" not in data
+                else "must be text naming where the levels come from",
+                'e.g. source: "Customer requirement CR-7, section 4"',
+            )
         marginal_is = self.marginal_is([*keys, "marginal_is"], data.get("marginal_is"))
         if "rules" not in data:
             self.error(keys, "missing key 'rules'", "list the acceptance rules, or name a set")
             return None
         n_before = len(self.problems)
         rules = self.rules([*keys, "rules"], data["rules"])
-        if any(p.severity == "error" for p in self.problems[n_before:]) or not isinstance(source, str):
+        if any(p.severity == "error" for p in self.problems[n_before:]) or not isinstance(
+            source, str
+        ):
             return None
         return Criteria(source=source.strip(), marginal_is=marginal_is, rules=tuple(rules))
 
@@ -675,18 +948,28 @@ class _Parser:
         cs = CRITERIA_SETS.get(name) if isinstance(name, str) else None
         if cs is None:
             close = difflib.get_close_matches(str(name), sorted(CRITERIA_SETS), n=1)
-            self.error([*keys, "set"], f"unknown criteria set {name!r}",
-                       (f"did you mean '{close[0]}'? " if close else "")
-                       + f"shipped sets: {', '.join(sorted(CRITERIA_SETS))}")
+            self.error(
+                [*keys, "set"],
+                f"unknown criteria set {name!r}",
+                (f"did you mean '{close[0]}'? " if close else "")
+                + f"shipped sets: {', '.join(sorted(CRITERIA_SETS))}",
+            )
             return None
         allowed = ("set", "marginal_is", *sorted(cs.params))
         for own in ("source", "rules"):
             if own in data:
-                self.error([*keys, own], f"unknown key '{own}' next to 'set'",
-                           "a shipped set carries its own source and rules; leave out 'set' to "
-                           "write your own")
-        self.unknown_keys(keys, {k: v for k, v in data.items() if k not in ("source", "rules")}, allowed)
-        marginal_is = self.marginal_is([*keys, "marginal_is"], data.get("marginal_is", cs.marginal_is))
+                self.error(
+                    [*keys, own],
+                    f"unknown key '{own}' next to 'set'",
+                    "a shipped set carries its own source and rules; leave out 'set' to "
+                    "write your own",
+                )
+        self.unknown_keys(
+            keys, {k: v for k, v in data.items() if k not in ("source", "rules")}, allowed
+        )
+        marginal_is = self.marginal_is(
+            [*keys, "marginal_is"], data.get("marginal_is", cs.marginal_is)
+        )
         params: dict[str, float] = {}
         for p, default in sorted(cs.params.items()):
             v = data.get(p, default)
@@ -694,7 +977,10 @@ class _Parser:
             if num is None:
                 continue
             if not 0.0 < num < 1.0 or (p == "confidence" and num <= 0.5):
-                self.error([*keys, p], f"must lie strictly between {0.5 if p == 'confidence' else 0:g} and 1, got {num:g}")
+                self.error(
+                    [*keys, p],
+                    f"must lie strictly between {0.5 if p == 'confidence' else 0:g} and 1, got {num:g}",
+                )
                 continue
             params[p] = num
         if len(params) != len(cs.params):
@@ -703,7 +989,10 @@ class _Parser:
         left_out: list[tuple[str, str]] = []
         refused: list[str] = []
         for i, raw in enumerate(cs.rules):
-            raw = {k: (params[v[1:]] if isinstance(v, str) and v.startswith("$") else v) for k, v in raw.items()}
+            raw = {
+                k: (params[v[1:]] if isinstance(v, str) and v.startswith("$") else v)
+                for k, v in raw.items()
+            }
             sub = _Parser(self.study, self.results, self.has_reference)
             r = sub.rule([*keys, "set"], raw, i + 1)
             errors = [p for p in sub.problems if p.severity == "error"]
@@ -713,48 +1002,73 @@ class _Parser:
                 left_out.append((raw["measure"], errors[0].message if errors else "does not apply"))
             else:
                 for p in errors:
-                    why = p.message.split(": ", 1)[-1] if "does not apply" in p.message else p.message
+                    why = (
+                        p.message.split(": ", 1)[-1] if "does not apply" in p.message else p.message
+                    )
                     if why not in refused:
                         refused.append(why)
         if refused:
-            self.error([*keys, "set"], f"the criteria set '{cs.name}' does not apply to this study: "
-                       f"{'; '.join(refused)}",
-                       f"write your own rules instead; measures that apply: "
-                       f"{', '.join(self.applicable()) or 'none'}")
+            self.error(
+                [*keys, "set"],
+                f"the criteria set '{cs.name}' does not apply to this study: {'; '.join(refused)}",
+                f"write your own rules instead; measures that apply: "
+                f"{', '.join(self.applicable()) or 'none'}",
+            )
         if not rules and not any(p.severity == "error" for p in self.problems):
-            self.error([*keys, "set"], f"no rule of the criteria set '{cs.name}' applies to this study",
-                       f"measures that apply: {', '.join(self.applicable()) or 'none'}")
+            self.error(
+                [*keys, "set"],
+                f"no rule of the criteria set '{cs.name}' applies to this study",
+                f"measures that apply: {', '.join(self.applicable()) or 'none'}",
+            )
         if any(p.severity == "error" for p in self.problems):
             return None
         # rule numbers follow the rules kept
         rules = [dataclasses.replace(r, index=i + 1) for i, r in enumerate(rules)]
-        return Criteria(source=cs.source, marginal_is=marginal_is, rules=tuple(rules), set=cs,
-                        params=params, left_out=tuple(sorted(left_out)))
+        return Criteria(
+            source=cs.source,
+            marginal_is=marginal_is,
+            rules=tuple(rules),
+            set=cs,
+            params=params,
+            left_out=tuple(sorted(left_out)),
+        )
 
     # -- certification ----------------------------------------------------------------------
     def certification(self, data: Any) -> Certification | None:
         keys: list[Any] = ["certification"]
         if not isinstance(data, Mapping):
-            self.error(keys, "must be a mapping with 'rules'",
-                       "e.g. certification: {valid_months: 12, rules: [{measure: repeatability.agreement, pass: 0.9}]}")
+            self.error(
+                keys,
+                "must be a mapping with 'rules'",
+                "e.g. certification: {valid_months: 12, rules: [{measure: repeatability.agreement, pass: 0.9}]}",
+            )
             return None
         self.unknown_keys(keys, data, CERTIFICATION_KEYS)
         n_before = len(self.problems)
         if self.study.date is None:
-            self.error(keys, "certification needs the study date (`study.date`): it is the "
-                       "certification date", "add e.g. 'date: 2026-11-20' under 'study'")
+            self.error(
+                keys,
+                "certification needs the study date (`study.date`): it is the certification date",
+                "add e.g. 'date: 2026-11-20' under 'study'",
+            )
         valid_months = DEFAULT_VALID_MONTHS
         if "valid_months" in data:
             v = data["valid_months"]
             if isinstance(v, bool) or not isinstance(v, int) or not 1 <= v <= 120:
-                self.error([*keys, "valid_months"], f"must be a whole number of months from 1 to 120, got {v!r}")
+                self.error(
+                    [*keys, "valid_months"],
+                    f"must be a whole number of months from 1 to 120, got {v!r}",
+                )
             else:
                 valid_months = v
         due = DEFAULT_DUE_WINDOW_DAYS
         if "due_window_days" in data:
             v = data["due_window_days"]
             if isinstance(v, bool) or not isinstance(v, int) or not 0 <= v <= 366:
-                self.error([*keys, "due_window_days"], f"must be a whole number of days from 0 to 366, got {v!r}")
+                self.error(
+                    [*keys, "due_window_days"],
+                    f"must be a whole number of days from 0 to 366, got {v!r}",
+                )
             else:
                 due = v
         source = data.get("source")
@@ -767,8 +1081,13 @@ class _Parser:
         rules = self.rules([*keys, "rules"], data["rules"], certification=True)
         if any(p.severity == "error" for p in self.problems[n_before:]):
             return None
-        return Certification(rules=tuple(rules), marginal_is=marginal_is, valid_months=valid_months,
-                             due_window_days=due, source=source.strip() if isinstance(source, str) else None)
+        return Certification(
+            rules=tuple(rules),
+            marginal_is=marginal_is,
+            valid_months=valid_months,
+            due_window_days=due,
+            source=source.strip() if isinstance(source, str) else None,
+        )
 
 
 def _parse(
@@ -776,7 +1095,9 @@ def _parse(
 ) -> tuple[Criteria | None, Certification | None, list[Problem]]:
     parser = _Parser(study, results, has_reference)
     criteria = parser.criteria(study.criteria) if study.criteria is not None else None
-    certification = parser.certification(study.certification) if study.certification is not None else None
+    certification = (
+        parser.certification(study.certification) if study.certification is not None else None
+    )
     return criteria, certification, parser.problems
 
 
@@ -809,7 +1130,9 @@ def load_criteria(
 # --------------------------------------------------------------------------------------------
 
 
-def _lookup(results: Mapping[str, Any], info: MeasureInfo, target: str | None) -> Mapping[str, Any] | None:
+def _lookup(
+    results: Mapping[str, Any], info: MeasureInfo, target: str | None
+) -> Mapping[str, Any] | None:
     block = results.get(info.group)
     if not isinstance(block, Mapping):
         return None
@@ -843,7 +1166,9 @@ def _has_interval(results: Mapping[str, Any], info: MeasureInfo, target: str | N
         recs = [_lookup(results, info, t) for t in block]
     else:
         recs = [_lookup(results, info, t) for t in block.get(BY_CATEGORY, {})]
-    return any(r is not None and r.get("ci_low") is not None and r.get("ci_high") is not None for r in recs)
+    return any(
+        r is not None and r.get("ci_low") is not None and r.get("ci_high") is not None for r in recs
+    )
 
 
 def _num(x: Any) -> float | None:
@@ -886,7 +1211,9 @@ def _one_sided_bound(rec: Mapping[str, Any], rule: Rule) -> tuple[float | None, 
     return (high if rule.judge == "upper_bound" else low), None
 
 
-def _settle(rec: Mapping[str, Any], rule: Rule, value: float, design_items: int | None) -> dict[str, Any] | None:
+def _settle(
+    rec: Mapping[str, Any], rule: Rule, value: float, design_items: int | None
+) -> dict[str, Any] | None:
     """When the uncertainty straddles a level: how many items would settle it (same mix of items).
 
     Judging the estimate, a level is straddled when it lies inside the interval; judging a bound,
@@ -921,11 +1248,15 @@ def _settle(rec: Mapping[str, Any], rule: Rule, value: float, design_items: int 
     if not (isinstance(n, int) and n > 0):
         text = "more items would settle it"
     elif headline["items_needed"] is None:
-        text = ("the interval straddles the level and the estimate sits on it: more items alone "
-                "are unlikely to settle it")
+        text = (
+            "the interval straddles the level and the estimate sits on it: more items alone "
+            "are unlikely to settle it"
+        )
     else:
-        text = (f"more items would settle it: about {headline['items_needed']} items in all "
-                f"(now {n}), with the same mix of items")
+        text = (
+            f"more items would settle it: about {headline['items_needed']} items in all "
+            f"(now {n}), with the same mix of items"
+        )
     return {
         "levels": out,
         "items_now": n,
@@ -935,8 +1266,14 @@ def _settle(rec: Mapping[str, Any], rule: Rule, value: float, design_items: int 
     }
 
 
-def _check(rule: Rule, rec: Mapping[str, Any] | None, target: str | None, *, design_items: int | None,
-           study_confidence: float) -> dict[str, Any]:
+def _check(
+    rule: Rule,
+    rec: Mapping[str, Any] | None,
+    target: str | None,
+    *,
+    design_items: int | None,
+    study_confidence: float,
+) -> dict[str, Any]:
     """Judge one rule for one rater / category / the panel."""
     if rule.info.per_rater:
         path = f"{rule.info.group}.{target}.{rule.info.name}"
@@ -970,10 +1307,17 @@ def _check(rule: Rule, rec: Mapping[str, Any] | None, target: str | None, *, des
         entry["note"] = "not in the results for this study: the rule cannot be shown to hold"
         return entry
     est = _num(rec.get("estimate"))
-    entry.update(estimate=est, ci_low=_num(rec.get("ci_low")), ci_high=_num(rec.get("ci_high")),
-                 ci_method=rec.get("ci_method"), items=rec.get("items"))
+    entry.update(
+        estimate=est,
+        ci_low=_num(rec.get("ci_low")),
+        ci_high=_num(rec.get("ci_high")),
+        ci_method=rec.get("ci_method"),
+        items=rec.get("items"),
+    )
     if est is None:
-        entry["note"] = "undefined for these data (see the warnings): the rule cannot be shown to hold"
+        entry["note"] = (
+            "undefined for these data (see the warnings): the rule cannot be shown to hold"
+        )
         return entry
     if rule.judge == "estimate":
         value: float | None = est
@@ -997,8 +1341,9 @@ def _check(rule: Rule, rec: Mapping[str, Any] | None, target: str | None, *, des
     entry["value"] = value
     entry["outcome"] = outcome_of(value, rule)
     entry["margin"] = sign * (value - rule.pass_level)
-    entry["settle"] = _settle({**rec, "ci_low": entry["ci_low"], "ci_high": entry["ci_high"]}, rule,
-                              value, design_items)
+    entry["settle"] = _settle(
+        {**rec, "ci_low": entry["ci_low"], "ci_high": entry["ci_high"]}, rule, value, design_items
+    )
     return entry
 
 
@@ -1008,7 +1353,9 @@ def _design_items(results: Mapping[str, Any]) -> int | None:
     return n if isinstance(n, int) and not isinstance(n, bool) else None
 
 
-def _judge_rules(study: Study, results: Mapping[str, Any], rules: Sequence[Rule]) -> list[dict[str, Any]]:
+def _judge_rules(
+    study: Study, results: Mapping[str, Any], rules: Sequence[Rule]
+) -> list[dict[str, Any]]:
     out = []
     n = _design_items(results)
     for rule in rules:
@@ -1036,18 +1383,26 @@ def _verdict_sentence(outcome: str, checks: Sequence[Mapping[str, Any]], margina
     noun = "criterion check" if n == 1 else "criterion checks"
     if outcome == "PASS":
         if not marginal:
-            return f"PASS: all {n} {noun} meet their pass levels." if n > 1 else \
-                f"PASS: the {noun} meets its pass level."
-        return (f"PASS: {n - len(marginal)} of {n} {noun} meet their pass levels and "
-                f"{len(marginal)} {'is' if len(marginal) == 1 else 'are'} marginal, which these "
-                f"criteria accept.")
+            return (
+                f"PASS: all {n} {noun} meet their pass levels."
+                if n > 1
+                else f"PASS: the {noun} meets its pass level."
+            )
+        return (
+            f"PASS: {n - len(marginal)} of {n} {noun} meet their pass levels and "
+            f"{len(marginal)} {'is' if len(marginal) == 1 else 'are'} marginal, which these "
+            f"criteria accept."
+        )
     parts = []
     if short:
         parts.append(f"{len(short)} of {n} {noun} {'falls' if len(short) == 1 else 'fall'} short")
     if marginal and marginal_is == "improve":
         verb = "is" if len(marginal) == 1 else "are"
-        parts.append(f"{len(marginal)} {verb} marginal" if short else
-                     f"{len(marginal)} of {n} {noun} {verb} marginal")
+        parts.append(
+            f"{len(marginal)} {verb} marginal"
+            if short
+            else f"{len(marginal)} of {n} {noun} {verb} marginal"
+        )
 
     def badness(c: Mapping[str, Any]) -> tuple[int, float, str]:
         rank = 0 if c["outcome"] == "short" else 1
@@ -1057,10 +1412,15 @@ def _verdict_sentence(outcome: str, checks: Sequence[Mapping[str, Any]], margina
     if worst["value"] is None:
         tail = f"{_who(worst)} could not be judged"
     else:
-        basis = "estimate" if worst["judge"] == "estimate" else \
-            ("lower bound" if worst["judge"] == "lower_bound" else "upper bound")
-        tail = (f"the furthest from its pass level is {_who(worst)}, {basis} {_fmt(worst['value'])} "
-                f"against {_fmt(worst['pass'])}")
+        basis = (
+            "estimate"
+            if worst["judge"] == "estimate"
+            else ("lower bound" if worst["judge"] == "lower_bound" else "upper bound")
+        )
+        tail = (
+            f"the furthest from its pass level is {_who(worst)}, {basis} {_fmt(worst['value'])} "
+            f"against {_fmt(worst['pass'])}"
+        )
     return f"IMPROVE: {' and '.join(parts)}; {tail}."
 
 
@@ -1091,31 +1451,43 @@ def _certify(study: Study, results: Mapping[str, Any], cert: Certification) -> d
         reasons = []
         for c in mine:
             side = "at or above" if c["better"] == "higher" else "at or below"
-            basis = {"estimate": "estimate", "lower_bound": "lower bound",
-                     "upper_bound": "upper bound"}[c["judge"]]
+            basis = {
+                "estimate": "estimate",
+                "lower_bound": "lower bound",
+                "upper_bound": "upper bound",
+            }[c["judge"]]
             if c["value"] is None:
                 reasons.append(f"{c['label']}: could not be judged ({c['note']})")
             elif c["outcome"] == "meets":
-                reasons.append(f"{c['label']} {basis} {_fmt(c['value'])} is {side} {_fmt(c['pass'])}")
+                reasons.append(
+                    f"{c['label']} {basis} {_fmt(c['value'])} is {side} {_fmt(c['pass'])}"
+                )
             elif c["outcome"] == "marginal":
                 accepted = "accepted" if cert.marginal_is == "pass" else "not enough"
-                reasons.append(f"{c['label']} {basis} {_fmt(c['value'])} is marginal "
-                               f"(pass level {_fmt(c['pass'])}; {accepted})")
+                reasons.append(
+                    f"{c['label']} {basis} {_fmt(c['value'])} is marginal "
+                    f"(pass level {_fmt(c['pass'])}; {accepted})"
+                )
             else:
-                reasons.append(f"{c['label']} {basis} {_fmt(c['value'])} falls short of "
-                               f"{_fmt(c['pass'])}")
+                reasons.append(
+                    f"{c['label']} {basis} {_fmt(c['value'])} falls short of {_fmt(c['pass'])}"
+                )
         on = study.date if ok else None
         until = valid_until(on, cert.valid_months) if on is not None else None
-        inspectors.append({
-            "rater": rid,
-            "name": names.get(rid),
-            "outcome": "certified" if ok else "not certified",
-            "reasons": reasons,
-            "checks": mine,
-            "certified_on": on.isoformat() if on else None,
-            "valid_until": until.isoformat() if until else None,
-            "due_from": (until - dt.timedelta(days=cert.due_window_days)).isoformat() if until else None,
-        })
+        inspectors.append(
+            {
+                "rater": rid,
+                "name": names.get(rid),
+                "outcome": "certified" if ok else "not certified",
+                "reasons": reasons,
+                "checks": mine,
+                "certified_on": on.isoformat() if on else None,
+                "valid_until": until.isoformat() if until else None,
+                "due_from": (until - dt.timedelta(days=cert.due_window_days)).isoformat()
+                if until
+                else None,
+            }
+        )
     cautions = [GENERAL_CAUTION] + ([SAFETY_CAUTION] if study.safety_related else [])
     return {
         "source": cert.source,
@@ -1148,17 +1520,25 @@ def _criteria_record(study: Study, results: Mapping[str, Any], c: Criteria) -> d
         "left_out": [{"measure": m, "reason": why} for m, why in c.left_out],
         "zero_failure": None,
     }
-    zf = [r for r in c.rules if r.confidence is not None and r.better == "lower" and r.judge == "upper_bound"]
+    zf = [
+        r
+        for r in c.rules
+        if r.confidence is not None and r.better == "lower" and r.judge == "upper_bound"
+    ]
     if zf:
         from .stats.proportion import zero_failure_sample_size
 
         r = zf[0]
         reliability = 1.0 - r.pass_level
         n0 = zero_failure_sample_size(reliability, r.confidence) if 0 < reliability < 1 else None
-        ratings_now = sorted({
-            rec_.get("items") for t in _targets(study, results, r)
-            if (rec_ := _lookup(results, r.info, t)) is not None and isinstance(rec_.get("items"), int)
-        })
+        ratings_now = sorted(
+            {
+                rec_.get("items")
+                for t in _targets(study, results, r)
+                if (rec_ := _lookup(results, r.info, t)) is not None
+                and isinstance(rec_.get("items"), int)
+            }
+        )
         rec["zero_failure"] = {
             "measure": r.measure,
             "limit": r.pass_level,
@@ -1167,11 +1547,13 @@ def _criteria_record(study: Study, results: Mapping[str, Any], c: Criteria) -> d
             "formula": "n = ln(1 - C) / ln(R)",
             "ratings_needed": n0,
             "ratings_now": ratings_now,
-            "text": (f"With no misses at all, {n0} ratings of defect items per rater show a miss "
-                     f"rate of at most {_fmt(r.pass_level)} with {_pct(r.confidence)} confidence "
-                     f"(n = ln(1 - {r.confidence:g}) / ln({reliability:g})); every miss raises "
-                     f"the number needed. This study has "
-                     f"{', '.join(str(x) for x in ratings_now) or 'no'} per rater."),
+            "text": (
+                f"With no misses at all, {n0} ratings of defect items per rater show a miss "
+                f"rate of at most {_fmt(r.pass_level)} with {_pct(r.confidence)} confidence "
+                f"(n = ln(1 - {r.confidence:g}) / ln({reliability:g})); every miss raises "
+                f"the number needed. This study has "
+                f"{', '.join(str(x) for x in ratings_now) or 'no'} per rater."
+            ),
         }
     return rec
 
@@ -1203,7 +1585,9 @@ def judge(study: Study, results: Mapping[str, Any]) -> dict[str, Any]:
             "outcome": outcome,
             "sentence": _verdict_sentence(outcome, checks, criteria.marginal_is),
             "marginal_is": criteria.marginal_is,
-            "counts": {k: sum(c["outcome"] == k for c in checks) for k in ("meets", "marginal", "short")},
+            "counts": {
+                k: sum(c["outcome"] == k for c in checks) for k in ("meets", "marginal", "short")
+            },
             "rules": checks,
         }
     out["certification"] = _certify(study, results, cert) if cert is not None else None
@@ -1225,7 +1609,9 @@ ACTION_KINDS = (
 )
 
 
-def actions(study: Study, results: Mapping[str, Any], *, checks: Sequence[Mapping[str, Any]] = ()) -> list[dict[str, Any]]:
+def actions(
+    study: Study, results: Mapping[str, Any], *, checks: Sequence[Mapping[str, Any]] = ()
+) -> list[dict[str, Any]]:
     """Concrete next steps, ranked: first those behind a rule that is not met, then by kind and
     by the share of ratings or items they concern."""
     found: list[dict[str, Any]] = []
@@ -1237,16 +1623,26 @@ def actions(study: Study, results: Mapping[str, Any], *, checks: Sequence[Mappin
     found += _few_borderline(study, results)
     found += _more_items(study, results, checks)
     order = {k: i for i, k in enumerate(ACTION_KINDS)}
-    found.sort(key=lambda a: (not a["linked_to_verdict"], order[a["kind"]], -a["effect"], a["subject"]))
+    found.sort(
+        key=lambda a: (not a["linked_to_verdict"], order[a["kind"]], -a["effect"], a["subject"])
+    )
     for i, a in enumerate(found):
         a["rank"] = i + 1
     return found
 
 
-def _action(kind: str, subject: str, text: str, effect: float, figures: dict[str, Any],
-            linked: bool = False) -> dict[str, Any]:
-    return {"rank": 0, "kind": kind, "subject": subject, "text": text, "effect": effect,
-            "linked_to_verdict": linked, "figures": figures}
+def _action(
+    kind: str, subject: str, text: str, effect: float, figures: dict[str, Any], linked: bool = False
+) -> dict[str, Any]:
+    return {
+        "rank": 0,
+        "kind": kind,
+        "subject": subject,
+        "text": text,
+        "effect": effect,
+        "linked_to_verdict": linked,
+        "figures": figures,
+    }
 
 
 def _confusion_counts(study: Study, conf: Any) -> list[list[int]] | None:
@@ -1281,7 +1677,9 @@ def _rec(block: Any, name: str) -> float | None:
     return _num(block[name].get("estimate"))
 
 
-def _rater_direction(study: Study, results: Mapping[str, Any], failing: set[str]) -> list[dict[str, Any]]:
+def _rater_direction(
+    study: Study, results: Mapping[str, Any], failing: set[str]
+) -> list[dict[str, Any]]:
     acc = results.get("accuracy")
     if not isinstance(acc, Mapping):
         return []
@@ -1300,8 +1698,14 @@ def _rater_direction(study: Study, results: Mapping[str, Any], failing: set[str]
         miss, fa = _rec(block, "miss_rate"), _rec(block, "false_alarm_rate")
         offset = _rec((ordinal.get("accuracy") or {}).get(rid), "mean_offset")
         counts = _confusion_counts(study, block.get("confusion"))
-        figures: dict[str, Any] = {"disagreement": wrong, "miss_rate": miss, "false_alarm_rate": fa,
-                                   "mean_offset": offset, "direction": None, "most_common": None}
+        figures: dict[str, Any] = {
+            "disagreement": wrong,
+            "miss_rate": miss,
+            "false_alarm_rate": fa,
+            "mean_offset": offset,
+            "direction": None,
+            "most_common": None,
+        }
         detail = ""
         off_rec = ((ordinal.get("accuracy") or {}).get(rid) or {}).get("mean_offset")
         if study.scale == "ordinal" and offset is not None and _is_record(off_rec):
@@ -1320,31 +1724,50 @@ def _rater_direction(study: Study, results: Mapping[str, Any], failing: set[str]
                 figures["direction"] = "strict"
             detail = f"miss rate {_fmt(miss)}, false alarm rate {_fmt(fa)}"
         if counts is not None:
-            cells = [(counts[a][b], a, b) for a in range(k) for b in range(k) if a != b and counts[a][b] > 0]
+            cells = [
+                (counts[a][b], a, b)
+                for a in range(k)
+                for b in range(k)
+                if a != b and counts[a][b] > 0
+            ]
             if cells:
                 n, a, b = max(cells, key=lambda t: (t[0], -t[2], -t[1]))
                 figures["most_common"] = {"rated": codes[a], "reference": codes[b], "ratings": n}
         share = f"{_pct(round(wrong, 3))} of ratings"
         if figures["direction"] == "strict":
-            text = (f"{rid} rates items worse than the reference ({detail}; {share} differ): too "
-                    f"strict. Go through the limit samples with {rid}, starting with the items "
-                    f"{rid} rejected or downgraded.")
+            text = (
+                f"{rid} rates items worse than the reference ({detail}; {share} differ): too "
+                f"strict. Go through the limit samples with {rid}, starting with the items "
+                f"{rid} rejected or downgraded."
+            )
         elif figures["direction"] == "lenient":
-            text = (f"{rid} rates items better than the reference ({detail}; {share} differ): too "
-                    f"lenient. Go through the limit samples with {rid}, starting with the items "
-                    f"{rid} passed or upgraded.")
+            text = (
+                f"{rid} rates items better than the reference ({detail}; {share} differ): too "
+                f"lenient. Go through the limit samples with {rid}, starting with the items "
+                f"{rid} passed or upgraded."
+            )
         else:
             mc = figures["most_common"]
-            most = (f"; most often {_cat(study, mc['rated'])} where the reference is "
-                    f"{_cat(study, mc['reference'])} ({_n(mc['ratings'], 'rating')})") if mc else ""
+            most = (
+                (
+                    f"; most often {_cat(study, mc['rated'])} where the reference is "
+                    f"{_cat(study, mc['reference'])} ({_n(mc['ratings'], 'rating')})"
+                )
+                if mc
+                else ""
+            )
             both = f" ({detail})" if detail else ""
-            text = (f"{rid} differs from the reference in {share}{both}, with no clear direction"
-                    f"{most}. Review the category descriptions and the limit samples with {rid}.")
+            text = (
+                f"{rid} differs from the reference in {share}{both}, with no clear direction"
+                f"{most}. Review the category descriptions and the limit samples with {rid}."
+            )
         out.append(_action("rater-direction", rid, text, wrong, figures, rid in failing))
     return out
 
 
-def _rater_consistency(study: Study, results: Mapping[str, Any], failing: set[str]) -> list[dict[str, Any]]:
+def _rater_consistency(
+    study: Study, results: Mapping[str, Any], failing: set[str]
+) -> list[dict[str, Any]]:
     rep = results.get("repeatability")
     if not isinstance(rep, Mapping):
         return []
@@ -1358,13 +1781,26 @@ def _rater_consistency(study: Study, results: Mapping[str, Any], failing: set[st
         if mixed_share <= 0 or (mixed_share < RATER_ACTION_SHARE and rid not in failing):
             continue
         n, mixed = block.get("items"), block.get("mixed_calls")
-        count = (f"{mixed} of {n} items" if isinstance(n, int) and isinstance(mixed, int)
-                 else f"{_pct(round(mixed_share, 3))} of items")
-        text = (f"{rid} called {count} differently in different trials. Check what {rid} looks at "
-                f"on those items (lighting, viewing distance, handling) and whether the category "
-                f"descriptions leave room for doubt.")
-        out.append(_action("rater-consistency", rid, text, mixed_share,
-                           {"mixed_calls": mixed, "items": n, "share": mixed_share}, rid in failing))
+        count = (
+            f"{mixed} of {n} items"
+            if isinstance(n, int) and isinstance(mixed, int)
+            else f"{_pct(round(mixed_share, 3))} of items"
+        )
+        text = (
+            f"{rid} called {count} differently in different trials. Check what {rid} looks at "
+            f"on those items (lighting, viewing distance, handling) and whether the category "
+            f"descriptions leave room for doubt."
+        )
+        out.append(
+            _action(
+                "rater-consistency",
+                rid,
+                text,
+                mixed_share,
+                {"mixed_calls": mixed, "items": n, "share": mixed_share},
+                rid in failing,
+            )
+        )
     return out
 
 
@@ -1381,7 +1817,9 @@ def _confused_pair(study: Study, results: Mapping[str, Any]) -> list[dict[str, A
     acc = results.get("accuracy")
     if isinstance(acc, Mapping) and acc:
         for block in acc.values():
-            counts = _confusion_counts(study, block.get("confusion") if isinstance(block, Mapping) else None)
+            counts = _confusion_counts(
+                study, block.get("confusion") if isinstance(block, Mapping) else None
+            )
             if counts is None:
                 continue
             for a in range(k):
@@ -1411,16 +1849,27 @@ def _confused_pair(study: Study, results: Mapping[str, Any]) -> list[dict[str, A
                     pair[a][b] += v[a] * v[b]
     if total == 0:
         return []
-    n, a, b = max(((pair[a][b], a, b) for a in range(k) for b in range(a + 1, k)),
-                  key=lambda t: (t[0], -t[1], -t[2]))
+    n, a, b = max(
+        ((pair[a][b], a, b) for a in range(k) for b in range(a + 1, k)),
+        key=lambda t: (t[0], -t[1], -t[2]),
+    )
     if n == 0:
         return []
     ca, cb = codes[a], codes[b]
-    text = (f"{_cat(study, ca)} and {_cat(study, cb)} are mixed up most often: {n} of "
-            f"{total} {basis}. Clarify the boundary between them in the category descriptions "
-            f"and add limit samples on both sides of it.")
-    return [_action("confused-pair", f"{ca}/{cb}", text, n / total,
-                    {"categories": [ca, cb], "count": n, "of": total, "basis": basis})]
+    text = (
+        f"{_cat(study, ca)} and {_cat(study, cb)} are mixed up most often: {n} of "
+        f"{total} {basis}. Clarify the boundary between them in the category descriptions "
+        f"and add limit samples on both sides of it."
+    )
+    return [
+        _action(
+            "confused-pair",
+            f"{ca}/{cb}",
+            text,
+            n / total,
+            {"categories": [ca, cb], "count": n, "of": total, "basis": basis},
+        )
+    ]
 
 
 def _item_count_table(items: Any, codes: Sequence[str]) -> Any:
@@ -1471,22 +1920,38 @@ def _hard_items(study: Study, results: Mapping[str, Any]) -> list[dict[str, Any]
     rows = []
     for iid in shown:
         it = index.get(iid, {})
-        rows.append({"item": iid, "agreement": _num(it.get("agreement")), "reference": it.get("reference")})
-    names = ", ".join(r["item"] + (f" (reference {r['reference']})" if r["reference"] is not None else "")
-                      for r in rows)
+        rows.append(
+            {"item": iid, "agreement": _num(it.get("agreement")), "reference": it.get("reference")}
+        )
+    names = ", ".join(
+        r["item"] + (f" (reference {r['reference']})" if r["reference"] is not None else "")
+        for r in rows
+    )
     more = f" and {len(hard) - len(shown)} more" if len(hard) > len(shown) else ""
-    text = (f"Review the items with the least agreement together with the raters: {names}{more}. "
-            f"Confirm their reference, and keep the clear-cut ones as limit samples.")
+    text = (
+        f"Review the items with the least agreement together with the raters: {names}{more}. "
+        f"Confirm their reference, and keep the clear-cut ones as limit samples."
+    )
     worst = rows[0]["agreement"]
-    return [_action("hard-items", ", ".join(shown), text, 1.0 - worst if worst is not None else 0.0,
-                    {"items": rows, "hard_items": len(hard)})]
+    return [
+        _action(
+            "hard-items",
+            ", ".join(shown),
+            text,
+            1.0 - worst if worst is not None else 0.0,
+            {"items": rows, "hard_items": len(hard)},
+        )
+    ]
 
 
 def _few_borderline(study: Study, results: Mapping[str, Any]) -> list[dict[str, Any]]:
     index = _item_index(results)
     # one flag per item rated at least twice: whether it drew any disagreement
-    drew = [it.get("all_agree") is False or it.get("matches_reference") is False
-            for it in index.values() if isinstance(r := it.get("ratings"), int) and r >= 2]
+    drew = [
+        it.get("all_agree") is False or it.get("matches_reference") is False
+        for it in index.values()
+        if isinstance(r := it.get("ratings"), int) and r >= 2
+    ]
     n_judged = len(drew)
     if n_judged < 2:
         return []
@@ -1494,19 +1959,33 @@ def _few_borderline(study: Study, results: Mapping[str, Any]) -> list[dict[str, 
     share = split / n_judged
     if share >= BORDERLINE_SHARE:
         return []
-    text = (f"Only {split} of {n_judged} items ({_pct(round(share, 3))}) drew any disagreement: "
-            f"the item set has few borderline items, so it says little about the hard calls. "
-            f"Next time include more items close to the category boundaries (at least "
-            f"{_pct(BORDERLINE_SHARE)} of the items is common practice, no source).")
-    return [_action("few-borderline", "item set", text, BORDERLINE_SHARE - share,
-                    {"items_with_disagreement": split, "items": n_judged, "share": share})]
+    text = (
+        f"Only {split} of {n_judged} items ({_pct(round(share, 3))}) drew any disagreement: "
+        f"the item set has few borderline items, so it says little about the hard calls. "
+        f"Next time include more items close to the category boundaries (at least "
+        f"{_pct(BORDERLINE_SHARE)} of the items is common practice, no source)."
+    )
+    return [
+        _action(
+            "few-borderline",
+            "item set",
+            text,
+            BORDERLINE_SHARE - share,
+            {"items_with_disagreement": split, "items": n_judged, "share": share},
+        )
+    ]
 
 
-def _more_items(study: Study, results: Mapping[str, Any], checks: Sequence[Mapping[str, Any]]) -> list[dict[str, Any]]:
+def _more_items(
+    study: Study, results: Mapping[str, Any], checks: Sequence[Mapping[str, Any]]
+) -> list[dict[str, Any]]:
     n_now = _design_items(results)
     settling = sorted(
-        ((c["settle"]["items_needed"], c["measure"]) for c in checks
-         if c.get("settle") and c["settle"].get("items_needed")),
+        (
+            (c["settle"]["items_needed"], c["measure"])
+            for c in checks
+            if c.get("settle") and c["settle"].get("items_needed")
+        ),
     )
     if settling and n_now:
         # checks whose estimate sits very close to a level need an impractical study; they are
@@ -1516,24 +1995,58 @@ def _more_items(study: Study, results: Mapping[str, Any], checks: Sequence[Mappi
         need = max(n for n, _ in shown)
         listed = ", ".join(f"{m} about {n}" for n, m in shown[:5])
         rest = len(settling) - len(shown)
-        tail = (f" {rest} more {'check sits' if rest == 1 else 'checks sit'} so close to a level "
-                f"that only a far larger study would settle {'it' if rest == 1 else 'them'}."
-                if rest > 0 else "")
-        text = (f"The interval straddles a level for {len(settling)} criterion "
-                f"{'check' if len(settling) == 1 else 'checks'}. Items needed in all (now {n_now}, "
-                f"same mix of items) to settle: {listed}.{tail}")
-        return [_action("more-items", "items", text, 1.0 - n_now / need if need > n_now else 0.0,
-                        {"items_now": n_now, "items_needed": need,
-                         "checks": [{"measure": m, "items_needed": n} for n, m in settling]}, True)]
+        tail = (
+            f" {rest} more {'check sits' if rest == 1 else 'checks sit'} so close to a level "
+            f"that only a far larger study would settle {'it' if rest == 1 else 'them'}."
+            if rest > 0
+            else ""
+        )
+        text = (
+            f"The interval straddles a level for {len(settling)} criterion "
+            f"{'check' if len(settling) == 1 else 'checks'}. Items needed in all (now {n_now}, "
+            f"same mix of items) to settle: {listed}.{tail}"
+        )
+        return [
+            _action(
+                "more-items",
+                "items",
+                text,
+                1.0 - n_now / need if need > n_now else 0.0,
+                {
+                    "items_now": n_now,
+                    "items_needed": need,
+                    "checks": [{"measure": m, "items_needed": n} for n, m in settling],
+                },
+                True,
+            )
+        ]
     cav = results.get("caveats")
     prec = cav.get("precision") if isinstance(cav, Mapping) else None
     if not isinstance(prec, Mapping):
         return []
-    need, hw, target = prec.get("items_needed"), _num(prec.get("half_width")), _num(prec.get("target_half_width"))
+    need, hw, target = (
+        prec.get("items_needed"),
+        _num(prec.get("half_width")),
+        _num(prec.get("target_half_width")),
+    )
     if not isinstance(need, int) or n_now is None or need <= n_now or hw is None or target is None:
         return []
-    text = (f"The interval of {prec.get('measure')} is ±{hw:.2f} wide, more than the target "
-            f"±{target:g}: about {need} items in all (now {n_now}) would reach the target.")
-    return [_action("more-items", "items", text, 1.0 - n_now / need,
-                    {"items_now": n_now, "items_needed": need, "half_width": hw,
-                     "target_half_width": target, "measure": prec.get("measure")})]
+    text = (
+        f"The interval of {prec.get('measure')} is ±{hw:.2f} wide, more than the target "
+        f"±{target:g}: about {need} items in all (now {n_now}) would reach the target."
+    )
+    return [
+        _action(
+            "more-items",
+            "items",
+            text,
+            1.0 - n_now / need,
+            {
+                "items_now": n_now,
+                "items_needed": need,
+                "half_width": hw,
+                "target_half_width": target,
+                "measure": prec.get("measure"),
+            },
+        )
+    ]

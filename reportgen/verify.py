@@ -39,7 +39,18 @@ TOLERANCE = 1e-12
 #: the line every DRAFT report carries on its first page (templates/report.html)
 DRAFT_MARK = "DRAFT — built with --replace; not a released revision"
 #: measure keys the report prints as percentages (the report's own convention, templates/_macros.html)
-PERCENT_KEYS = frozenset({"agreement", "effectiveness", "miss_rate", "false_alarm_rate", "exact", "within_one_step", "exact_agreement", "within_one_agreement"})
+PERCENT_KEYS = frozenset(
+    {
+        "agreement",
+        "effectiveness",
+        "miss_rate",
+        "false_alarm_rate",
+        "exact",
+        "within_one_step",
+        "exact_agreement",
+        "within_one_agreement",
+    }
+)
 #: figures checked against the printed text: (section, measure); per-rater sections use every rater
 PRINTED_PANEL = (("reproducibility", "agreement"), ("reproducibility", "fleiss_kappa"))
 PRINTED_RATER = (("repeatability", "agreement"), ("accuracy", "effectiveness"))
@@ -72,7 +83,9 @@ class Verification:
     def ok(self) -> bool:
         return all(f.ok for f in self.findings)
 
-    def add(self, check: str, ok: bool, message: str, details: list[str] | tuple[str, ...] = ()) -> None:
+    def add(
+        self, check: str, ok: bool, message: str, details: list[str] | tuple[str, ...] = ()
+    ) -> None:
         self.findings.append(Finding(check, ok, message, tuple(details)))
 
     def failures(self) -> list[Finding]:
@@ -80,7 +93,9 @@ class Verification:
 
     def format(self) -> str:
         who = f"{self.study_id} rev{self.revision}" if self.study_id else str(self.pdf)
-        head = f"{self.pdf}: {who}: " + ("GENUINE — every check holds" if self.ok else "NOT GENUINE — see the failed checks")
+        head = f"{self.pdf}: {who}: " + (
+            "GENUINE — every check holds" if self.ok else "NOT GENUINE — see the failed checks"
+        )
         if self.draft:
             head += " (a DRAFT built with --replace, not a released revision)"
         lines = [head]
@@ -96,7 +111,8 @@ class Verification:
             "draft": self.draft,
             "study": {"id": self.study_id, "revision": self.revision},
             "findings": [
-                {"check": f.check, "ok": f.ok, "message": f.message, "details": list(f.details)} for f in self.findings
+                {"check": f.check, "ok": f.ok, "message": f.message, "details": list(f.details)}
+                for f in self.findings
             ],
             "seconds": self.seconds,
         }
@@ -193,10 +209,16 @@ def compare_results(embedded: Any, recomputed: Any, path: str = "") -> list[tupl
             out += compare_results(a, b, f"{path}[{i}]")
         return out
     if isinstance(embedded, bool) or isinstance(recomputed, bool):
-        return [] if type(embedded) is type(recomputed) and embedded == recomputed else [(path, embedded, recomputed)]
+        return (
+            []
+            if type(embedded) is type(recomputed) and embedded == recomputed
+            else [(path, embedded, recomputed)]
+        )
     num = (int, float)
     if isinstance(embedded, num) and isinstance(recomputed, num):
-        if embedded == recomputed or math.isclose(embedded, recomputed, rel_tol=TOLERANCE, abs_tol=TOLERANCE):
+        if embedded == recomputed or math.isclose(
+            embedded, recomputed, rel_tol=TOLERANCE, abs_tol=TOLERANCE
+        ):
             return []
         return [(path, embedded, recomputed)]
     if type(embedded) is not type(recomputed) or embedded != recomputed:
@@ -228,7 +250,11 @@ def _relative_inputs(doc: Any) -> dict[str, str]:
     ratings = doc.get("ratings")
     if isinstance(ratings, dict):
         ratings = ratings.get("file")
-    for role, value in (("ratings", ratings), ("reference", doc.get("reference")), ("key", doc.get("key"))):
+    for role, value in (
+        ("ratings", ratings),
+        ("reference", doc.get("reference")),
+        ("key", doc.get("key")),
+    ):
         if isinstance(value, str) and value:
             out[role] = value
     report = doc.get("report")
@@ -260,7 +286,11 @@ def _attachment_names(study_name: str, inputs: dict[str, str]) -> dict[str, str]
 
 def _replace_value(text: str, parsed: Any, role: str, old: str, new: str) -> str:
     """``text`` with the value of ``role`` (as located by the YAML reader) changed to ``new``."""
-    keys = ("ratings", "file") if role == "ratings" and isinstance(parsed.data.get("ratings"), dict) else (role,)
+    keys = (
+        ("ratings", "file")
+        if role == "ratings" and isinstance(parsed.data.get("ratings"), dict)
+        else (role,)
+    )
     loc = parsed.where(keys)
     if loc.line is None:
         raise ValueError(f"cannot locate the {role} path {old!r} in the study definition")
@@ -268,11 +298,15 @@ def _replace_value(text: str, parsed: Any, role: str, old: str, new: str) -> str
     start = sum(len(x) for x in lines[: loc.line - 1]) + (loc.column or 1) - 1
     at = text.find(old, start)
     if at < 0:
-        raise ValueError(f"the study definition names its {role} by a path verify cannot follow ({old!r})")
-    return text[:at] + new + text[at + len(old):]
+        raise ValueError(
+            f"the study definition names its {role} by a path verify cannot follow ({old!r})"
+        )
+    return text[:at] + new + text[at + len(old) :]
 
 
-def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Callable[[str], None] | None = None) -> tuple[dict[str, Any], Any]:
+def recompute(
+    attachments: dict[str, bytes], study_name: str, *, progress: Callable[[str], None] | None = None
+) -> tuple[dict[str, Any], Any]:
     """Write the attachments into a temporary folder, load, analyse and judge them.
 
     Returns (results, study).  Raises InputError naming the attachment when the inputs
@@ -322,7 +356,9 @@ def recompute(attachments: dict[str, bytes], study_name: str, *, progress: Calla
             if name not in attachments:
                 name = by_base.get(PurePosixPath(written).name)
             if name is None:
-                raise ValueError(f"the {role} file {rel!r} that the study definition names is not attached")
+                raise ValueError(
+                    f"the {role} file {rel!r} that the study definition names is not attached"
+                )
             target.write_bytes(attachments[name])
         study_path.write_text(text, encoding="utf-8")
         say("loading the attached inputs")
@@ -424,7 +460,11 @@ def verify_report(
                 msg += " — not signed by a certificate given with --trust"
             v.add("signature", ok, msg)
     else:
-        v.add("signature", not trust, "none: the report is not signed" + (" but --trust was given" if trust else ""))
+        v.add(
+            "signature",
+            not trust,
+            "none: the report is not signed" + (" but --trust was given" if trust else ""),
+        )
 
     if damage is not None:
         v.add("readable", False, f"the PDF is damaged and cannot be read: {damage}")
@@ -434,7 +474,8 @@ def verify_report(
     study_names = [n for n in attachments if n.lower().endswith((".yaml", ".yml"))]
     if not attachments:
         v.add(
-            "attachments", False,
+            "attachments",
+            False,
             "the PDF carries no attachments: the study definition, the ratings and results.json were "
             "stripped, so nothing can be checked or recomputed",
         )
@@ -443,12 +484,18 @@ def verify_report(
     if "results.json" not in attachments:
         missing.append("results.json")
     if len(study_names) != 1:
-        missing.append("the study definition (.yaml)" if not study_names else "a single study definition")
+        missing.append(
+            "the study definition (.yaml)" if not study_names else "a single study definition"
+        )
     hashes = printed_hashes(text)
     input_names = sorted(n for n in attachments if n != "results.json")
     if missing:
-        v.add("attachments", False, "attachments stripped: " + ", ".join(missing) + " not attached",
-              [f"attached: {', '.join(sorted(attachments))}"])
+        v.add(
+            "attachments",
+            False,
+            "attachments stripped: " + ", ".join(missing) + " not attached",
+            [f"attached: {', '.join(sorted(attachments))}"],
+        )
         _check_hashes(v, attachments, input_names, text, hashes)
         return _done(v, t0)
     v.add("attachments", True, ", ".join(sorted(attachments)))
@@ -457,22 +504,33 @@ def verify_report(
         if not isinstance(embedded, dict):
             raise ValueError("not a JSON object")
     except (ValueError, UnicodeDecodeError) as exc:
-        v.add("recompute", False, f"edited results: the attached results.json cannot be read ({exc})")
+        v.add(
+            "recompute", False, f"edited results: the attached results.json cannot be read ({exc})"
+        )
         return _done(v, t0)
 
     # 3. identity
     study_block = embedded.get("study") if isinstance(embedded.get("study"), dict) else {}
     att_id, att_rev = study_block.get("id"), study_block.get("revision")
     if report_id is None:
-        v.add("identity", False, "the report's own study id and revision cannot be read from its title or header")
+        v.add(
+            "identity",
+            False,
+            "the report's own study id and revision cannot be read from its title or header",
+        )
     elif (att_id, att_rev) != (report_id, report_rev):
         v.add(
-            "identity", False,
+            "identity",
+            False,
             f"another study's data: the attachments are of {att_id} rev{att_rev}, but the report is of "
             f"{report_id} rev{report_rev}",
         )
     else:
-        v.add("identity", True, f"the attachments are of {report_id} rev{report_rev}, as the report says")
+        v.add(
+            "identity",
+            True,
+            f"the attachments are of {report_id} rev{report_rev}, as the report says",
+        )
 
     # 4. input hashes
     _check_hashes(v, attachments, input_names, text, hashes)
@@ -484,7 +542,12 @@ def verify_report(
     try:
         recomputed, _study = recompute(attachments, study_names[0], progress=say)
     except InputError as exc:
-        v.add("recompute", False, "the attached inputs cannot be loaded:", [p.format() for p in exc.problems()][:8])
+        v.add(
+            "recompute",
+            False,
+            "the attached inputs cannot be loaded:",
+            [p.format() for p in exc.problems()][:8],
+        )
         recomputed = None
     except (ValueError, UnicodeDecodeError) as exc:
         v.add("recompute", False, f"cannot recompute: {exc}")
@@ -493,27 +556,38 @@ def verify_report(
         recomputed = json.loads(json.dumps(recomputed))  # same JSON types as the embedded copy
         diffs = compare_results(embedded, recomputed)
         if diffs:
-            details = [f"{p}: results.json has {_short(a)}, recomputed {_short(b)}" for p, a, b in diffs[:8]]
+            details = [
+                f"{p}: results.json has {_short(a)}, recomputed {_short(b)}"
+                for p, a, b in diffs[:8]
+            ]
             if len(diffs) > 8:
                 details.append(f"… and {len(diffs) - 8} more")
             if built_with and built_with != f"reportgen {__version__}":
-                details.append(f"note: the report was built by {built_with}; this is reportgen {__version__}")
+                details.append(
+                    f"note: the report was built by {built_with}; this is reportgen {__version__}"
+                )
             v.add(
-                "recompute", False,
+                "recompute",
+                False,
                 f"edited results: {len(diffs)} value(s) in results.json differ from a recomputation from the "
                 "attached inputs",
                 details,
             )
         else:
             v.add(
-                "recompute", True,
+                "recompute",
+                True,
                 f"recomputed with reportgen {__version__}: all {count_numbers(embedded)} numbers of results.json "
                 f"agree (within {TOLERANCE:g})",
             )
 
     # 6. printed figures
     figures = printed_figures(embedded)
-    outcome = (embedded.get("verdict") or {}).get("outcome") if isinstance(embedded.get("verdict"), dict) else None
+    outcome = (
+        (embedded.get("verdict") or {}).get("outcome")
+        if isinstance(embedded.get("verdict"), dict)
+        else None
+    )
     wrong: list[str] = []
     if outcome and report_id and f"{report_id} · revision {report_rev} · {outcome}" not in flat:
         wrong.append(f"verdict: results.json says {outcome}, the report's header does not")
@@ -521,16 +595,31 @@ def verify_report(
         if not _printed(flat, squashed, est):
             wrong.append(f"{what}: results.json gives {est}, which the report does not print")
         elif ci != "—" and not _printed(flat, squashed, ci):
-            wrong.append(f"{what}: results.json gives the interval {ci}, which the report does not print")
+            wrong.append(
+                f"{what}: results.json gives the interval {ci}, which the report does not print"
+            )
     if wrong:
-        v.add("printed", False, f"{len(wrong)} figure(s) of results.json are not what the report prints", wrong[:10])
+        v.add(
+            "printed",
+            False,
+            f"{len(wrong)} figure(s) of results.json are not what the report prints",
+            wrong[:10],
+        )
     else:
-        v.add("printed", True, f"the verdict and {len(figures)} headline figures appear in the report as results.json gives them")
+        v.add(
+            "printed",
+            True,
+            f"the verdict and {len(figures)} headline figures appear in the report as results.json gives them",
+        )
     return _done(v, t0)
 
 
 def _check_hashes(
-    v: Verification, attachments: dict[str, bytes], names: list[str], text: str, hashes: list[tuple[int, int, str]]
+    v: Verification,
+    attachments: dict[str, bytes],
+    names: list[str],
+    text: str,
+    hashes: list[tuple[int, int, str]],
 ) -> None:
     listed = {h for _s, _e, h in hashes}
     wrong, matched = [], set()
@@ -553,13 +642,17 @@ def _check_hashes(
             wrong.append(f"{name}: its SHA-256 {h[:16]}… is not listed in the report")
     unattached = sorted(listed - matched - {_sha(d) for d in attachments.values()})
     for h in unattached:
-        wrong.append(f"attachment stripped: the report lists an input with SHA-256 {h[:16]}… that is not attached")
+        wrong.append(
+            f"attachment stripped: the report lists an input with SHA-256 {h[:16]}… that is not attached"
+        )
     if not names and not unattached:
         return
     if wrong:
         v.add("hashes", False, "the attached inputs are not the ones the report lists", wrong)
     else:
-        v.add("hashes", True, f"{len(names)} attached input(s) have the SHA-256 printed in the report")
+        v.add(
+            "hashes", True, f"{len(names)} attached input(s) have the SHA-256 printed in the report"
+        )
 
 
 def _done(v: Verification, t0: float) -> Verification:

@@ -140,7 +140,9 @@ def read_yaml(path: str | os.PathLike[str], *, what: str = "study definition") -
     if raw[:4] in (b"PK\x03\x04", b"%PDF") or raw[:8] == b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1":
         kind = "a PDF" if raw[:4] == b"%PDF" else "a workbook or other binary file"
         raise InputError.single(
-            shown, f"this is {kind}, not a {what}", hint=f"give the {what} (a YAML file such as study.yaml)"
+            shown,
+            f"this is {kind}, not a {what}",
+            hint=f"give the {what} (a YAML file such as study.yaml)",
         )
     text = _decode(raw, shown)
     return parse_yaml(text, shown=shown, path=p, what=what)

@@ -29,8 +29,14 @@ CALLS = {
 }
 
 
-def study_files(folder: Path, study_id: str = "LUG-CHECK", revision: int = 1, *, date: str = "2026-11-16",
-                flip: int | None = None) -> Path:
+def study_files(
+    folder: Path,
+    study_id: str = "LUG-CHECK",
+    revision: int = 1,
+    *,
+    date: str = "2026-11-16",
+    flip: int | None = None,
+) -> Path:
     """Write study.yaml, ratings.csv and reference.csv; ``flip`` changes one call of L3."""
     folder.mkdir(parents=True, exist_ok=True)
     (folder / "study.yaml").write_text(
@@ -76,7 +82,8 @@ certification:
                 rows.append(f"LUG-{i:02d},{rater},{t},{c}")
     (folder / "ratings.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
     (folder / "reference.csv").write_text(
-        "item,reference\n" + "".join(f"LUG-{i:02d},{r}\n" for i, r in enumerate(REFERENCE, start=1)),
+        "item,reference\n"
+        + "".join(f"LUG-{i:02d},{r}\n" for i, r in enumerate(REFERENCE, start=1)),
         encoding="utf-8",
     )
     return folder / "study.yaml"
@@ -118,7 +125,9 @@ def attachments_of(pdf: Path) -> dict[str, bytes]:
     return read_attachments(pdf)
 
 
-def self_signed_p12(folder: Path, *, common_name: str = "Ines Caro", passphrase: bytes | None = b"s3cret") -> tuple[Path, Path]:
+def self_signed_p12(
+    folder: Path, *, common_name: str = "Ines Caro", passphrase: bytes | None = b"s3cret"
+) -> tuple[Path, Path]:
     """A self-signed EC certificate and key as signer.p12 (and the certificate as signer.pem)."""
     from cryptography import x509
     from cryptography.hazmat.primitives import hashes, serialization
@@ -127,10 +136,12 @@ def self_signed_p12(folder: Path, *, common_name: str = "Ines Caro", passphrase:
     from cryptography.x509.oid import NameOID
 
     key = ec.generate_private_key(ec.SECP256R1())
-    name = x509.Name([
-        x509.NameAttribute(NameOID.COMMON_NAME, common_name),
-        x509.NameAttribute(NameOID.ORGANIZATION_NAME, "Harness plant QA"),
-    ])
+    name = x509.Name(
+        [
+            x509.NameAttribute(NameOID.COMMON_NAME, common_name),
+            x509.NameAttribute(NameOID.ORGANIZATION_NAME, "Harness plant QA"),
+        ]
+    )
     start = dt.datetime(2026, 1, 1, tzinfo=dt.UTC)
     cert = (
         x509.CertificateBuilder()
@@ -142,14 +153,26 @@ def self_signed_p12(folder: Path, *, common_name: str = "Ines Caro", passphrase:
         .not_valid_after(start + dt.timedelta(days=3650))
         .add_extension(x509.BasicConstraints(ca=True, path_length=None), critical=True)
         .add_extension(
-            x509.KeyUsage(digital_signature=True, content_commitment=True, key_encipherment=False,
-                          data_encipherment=False, key_agreement=False, key_cert_sign=True, crl_sign=False,
-                          encipher_only=False, decipher_only=False),
+            x509.KeyUsage(
+                digital_signature=True,
+                content_commitment=True,
+                key_encipherment=False,
+                data_encipherment=False,
+                key_agreement=False,
+                key_cert_sign=True,
+                crl_sign=False,
+                encipher_only=False,
+                decipher_only=False,
+            ),
             critical=True,
         )
         .sign(key, hashes.SHA256())
     )
-    enc = serialization.BestAvailableEncryption(passphrase) if passphrase else serialization.NoEncryption()
+    enc = (
+        serialization.BestAvailableEncryption(passphrase)
+        if passphrase
+        else serialization.NoEncryption()
+    )
     p12 = folder / f"{common_name.split()[0].lower()}.p12"
     pem = p12.with_suffix(".pem")
     p12.write_bytes(pkcs12.serialize_key_and_certificates(b"signer", key, cert, None, enc))

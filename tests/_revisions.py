@@ -113,15 +113,34 @@ def make_revision(
     )
     reference = "item,reference\n" + "".join(f"{it},OK\n" for it in items)
     yaml_text = study_yaml(
-        study_id, revision, date=date, characteristic=characteristic, station=station,
-        raters=raters, valid_months=valid_months,
+        study_id,
+        revision,
+        date=date,
+        characteristic=characteristic,
+        station=station,
+        raters=raters,
+        valid_months=valid_months,
     )
     results: dict[str, Any] = {
         "schema": "reportgen-results/1",
-        "study": {"id": study_id, "revision": revision, "title": f"Seal seating check, {characteristic}", "scale": "binary"},
-        "design": {"items": len(items), "raters": len(raters), "trials": 2, "scale": "binary", "confidence_level": 0.95},
+        "study": {
+            "id": study_id,
+            "revision": revision,
+            "title": f"Seal seating check, {characteristic}",
+            "scale": "binary",
+        },
+        "design": {
+            "items": len(items),
+            "raters": len(raters),
+            "trials": 2,
+            "scale": "binary",
+            "confidence_level": 0.95,
+        },
         "repeatability": {r: {"agreement": record(rater_agreement[r] + 0.02)} for r in raters},
-        "accuracy": {r: {"agreement": record(rater_agreement[r]), "miss_rate": record(0.03, 0.02)} for r in raters},
+        "accuracy": {
+            r: {"agreement": record(rater_agreement[r]), "miss_rate": record(0.03, 0.02)}
+            for r in raters
+        },
         "reproducibility": {"agreement": record(0.85), "fleiss_kappa": record(kappa, 0.08)},
         "panel_accuracy": {"agreement": record(0.8), "effectiveness": record(0.8)},
         "items": [{"id": it} for it in items],
@@ -138,7 +157,9 @@ def make_revision(
                     "name": raters[r],
                     "outcome": "certified" if certified[r] else "not certified",
                     "certified_on": date if certified[r] else None,
-                    "valid_until": _end_of_month_after(date, valid_months) if certified[r] and date else None,
+                    "valid_until": _end_of_month_after(date, valid_months)
+                    if certified[r] and date
+                    else None,
                 }
                 for r in raters
             ],
@@ -149,7 +170,9 @@ def make_revision(
     folder.mkdir(parents=True)
     results_bytes = (json.dumps(results, indent=2) + "\n").encode()
     (folder / "results.json").write_bytes(results_bytes)
-    (folder / f"{study_id}-rev{revision}.html").write_text(f"<html><body>{study_id}</body></html>\n")
+    (folder / f"{study_id}-rev{revision}.html").write_text(
+        f"<html><body>{study_id}</body></html>\n"
+    )
     (folder / f"{study_id}-rev{revision}.pdf").write_bytes(
         make_pdf(
             {

@@ -770,8 +770,11 @@ def test_fleiss_category_warnings_name_the_code() -> None:
     codes = np.array([[[0], [0]], [[1], [1]], [[2], [1]], [[0], [2]], [[1], [1]]])
     res = analyse(study, make_ratings(study, codes))
     assert res["reproducibility"]["fleiss_kappa_by_category"]["D"]["estimate"] is None
-    msgs = [w["message"] for w in res["warnings"]
-            if w["measure"] == "reproducibility.fleiss_kappa_by_category.D"]
+    msgs = [
+        w["message"]
+        for w in res["warnings"]
+        if w["measure"] == "reproducibility.fleiss_kappa_by_category.D"
+    ]
     assert any("category D" in m for m in msgs), msgs
     assert not any("category 3" in m for m in msgs)
 
@@ -786,8 +789,10 @@ def test_analytic_repeatability_interval_stays_within_range() -> None:
     fk = res["repeatability"]["R1"]["fleiss_kappa"]
     assert fk["ci_method"] == "analytic (Gwet)"
     assert -1.0 <= fk["ci_low"] <= fk["estimate"] <= fk["ci_high"] == 1.0
-    assert any(w["measure"] == "repeatability.R1.fleiss_kappa" and "cut to the range" in w["message"]
-               for w in res["warnings"])
+    assert any(
+        w["measure"] == "repeatability.R1.fleiss_kappa" and "cut to the range" in w["message"]
+        for w in res["warnings"]
+    )
 
 
 def test_no_unit_with_two_ratings_gives_worded_undefined_conger() -> None:
@@ -799,8 +804,10 @@ def test_no_unit_with_two_ratings_gives_worded_undefined_conger() -> None:
     res = analyse(study, make_ratings(study, codes, [0, 1, 0, 1]))
     cg = res["reproducibility"]["conger_kappa"]
     assert cg["estimate"] is None
-    assert any(w["measure"] == "reproducibility.conger_kappa" and "undefined" in w["message"]
-               for w in res["warnings"])
+    assert any(
+        w["measure"] == "reproducibility.conger_kappa" and "undefined" in w["message"]
+        for w in res["warnings"]
+    )
     dumps(res)
 
 
@@ -869,10 +876,16 @@ def test_rater_identified_bootstrap_dropped_in_words_when_too_large(
     res = analyse(study, ratings)
     measures = res["bootstrap"]["measures"]
     assert "reproducibility.fleiss_kappa" in measures  # the count patterns always fit
-    for path in ("reproducibility.conger_kappa", "reproducibility.light_kappa",
-                 "accuracy.R1.cohen_kappa", "repeatability.R1.fleiss_kappa"):
+    for path in (
+        "reproducibility.conger_kappa",
+        "reproducibility.light_kappa",
+        "accuracy.R1.cohen_kappa",
+        "repeatability.R1.fleiss_kappa",
+    ):
         assert path not in measures
-        assert any(w["measure"] == path and "too large" in w["message"] for w in res["warnings"]), path
+        assert any(w["measure"] == path and "too large" in w["message"] for w in res["warnings"]), (
+            path
+        )
     assert res["reproducibility"]["light_kappa"]["ci_low"] is None  # none published
     # the per-rater kappa keeps its analytic interval (and the warning says it is too narrow)
     ck = res["accuracy"]["R1"]["cohen_kappa"]
@@ -913,19 +926,34 @@ def test_labelling_campaign_memory() -> None:
         gwet_ac(pat)
         gwet_ac(pat, weights="quadratic")
         f = np.concatenate(
-            [fleiss_kappa_features(pat.rows), krippendorff_alpha_features(pat.rows),
-             gwet_ac_features(pat.rows), gwet_ac_features(pat.rows, weights="quadratic")], axis=1
+            [
+                fleiss_kappa_features(pat.rows),
+                krippendorff_alpha_features(pat.rows),
+                gwet_ac_features(pat.rows),
+                gwet_ac_features(pat.rows, weights="quadratic"),
+            ],
+            axis=1,
         )
         stats = {"fleiss": ("c", lambda s: fleiss_kappa_from_sums(s[..., :13]))}
         for j in range(k):
-            stats[f"c{j}"] = ("c", lambda s, j=j: fleiss_kappa_by_category_from_sums(s[..., :13])[..., j])
-        bootstrap_groups({"c": FeatureGroup(f, pat.multiplicity, pat.inverse)}, stats,
-                         resamples=2000, seed=1)
+            stats[f"c{j}"] = (
+                "c",
+                lambda s, j=j: fleiss_kappa_by_category_from_sums(s[..., :13])[..., j],
+            )
+        bootstrap_groups(
+            {"c": FeatureGroup(f, pat.multiplicity, pat.inverse)}, stats, resamples=2000, seed=1
+        )
         peak = tracemalloc.get_traced_memory()[1] - base
         assert peak < 100 * 2**20, f"{peak / 2**20:.0f} MB"
-        study = make_study(scale="ordinal", codes=tuple("ABCDE"),
-                           raters=tuple(f"R{i}" for i in range(r)), trials=1, defect=None,
-                           bootstrap_resamples=2000, missing="allow")
+        study = make_study(
+            scale="ordinal",
+            codes=tuple("ABCDE"),
+            raters=tuple(f"R{i}" for i in range(r)),
+            trials=1,
+            defect=None,
+            bootstrap_resamples=2000,
+            missing="allow",
+        )
         ratings = make_ratings(study, codes[:, :, None])
         tracemalloc.reset_peak()
         base = tracemalloc.get_traced_memory()[0]

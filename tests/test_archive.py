@@ -28,17 +28,26 @@ from reportgen.errors import ExistsError, InputError
 NOW = dt.datetime(2026, 3, 1, 12, 0, tzinfo=dt.UTC)
 
 
-def _run(*args: str, env: dict[str, str] | None = None, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
+def _run(
+    *args: str, env: dict[str, str] | None = None, cwd: Path | None = None
+) -> subprocess.CompletedProcess[str]:
     return subprocess.run(
         [sys.executable, "-m", "reportgen", *args],
-        capture_output=True, text=True, env={**os.environ, **(env or {})}, cwd=cwd, timeout=120,
+        capture_output=True,
+        text=True,
+        env={**os.environ, **(env or {})},
+        cwd=cwd,
+        timeout=120,
     )
 
 
 def _spawn(*args: str, env: dict[str, str]) -> subprocess.Popen[str]:
     return subprocess.Popen(
         [sys.executable, "-m", "reportgen", *args],
-        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env={**os.environ, **env},
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        env={**os.environ, **env},
     )
 
 
@@ -68,7 +77,12 @@ def test_archive_copies_read_only_and_indexes(tmp_path: Path) -> None:
 
     final = root / "SEAL-CHECK" / "rev1"
     assert entry.folder == "SEAL-CHECK/rev1"
-    for rel in ("results.json", "SEAL-CHECK-rev1.pdf", "SEAL-CHECK-rev1.html", "charts/agreement.svg"):
+    for rel in (
+        "results.json",
+        "SEAL-CHECK-rev1.pdf",
+        "SEAL-CHECK-rev1.html",
+        "charts/agreement.svg",
+    ):
         assert (final / rel).read_bytes() == (rev / rel).read_bytes()
         assert is_read_only(final / rel)
     assert is_read_only(final)
@@ -82,10 +96,19 @@ def test_archive_copies_read_only_and_indexes(tmp_path: Path) -> None:
     assert row.figures["panel"]["reproducibility.fleiss_kappa"]["estimate"] == 0.81
     assert row.figures["raters"]["I1"]["accuracy.agreement"]["ci_low"] == pytest.approx(0.85)
     assert row.certification["I2"] == {
-        "name": "Ben Okafor", "outcome": "certified", "assessed_on": "2026-01-15", "certified_on": "2026-01-15",
-        "valid_until": "2027-01-31", "due_window_days": 30,
+        "name": "Ben Okafor",
+        "outcome": "certified",
+        "assessed_on": "2026-01-15",
+        "certified_on": "2026-01-15",
+        "valid_until": "2027-01-31",
+        "due_window_days": 30,
     }
-    assert set(row.files) == {"results.json", "SEAL-CHECK-rev1.pdf", "SEAL-CHECK-rev1.html", "charts/agreement.svg"}
+    assert set(row.files) == {
+        "results.json",
+        "SEAL-CHECK-rev1.pdf",
+        "SEAL-CHECK-rev1.html",
+        "charts/agreement.svg",
+    }
     assert set(row.inputs) == {"study.yaml", "ratings.csv", "reference.csv"}
     assert len(row.items) == 30
 
@@ -103,9 +126,10 @@ def test_never_overwrites_and_new_revision_supersedes(tmp_path: Path) -> None:
 
     rev2 = make_revision(out, "SEAL-CHECK", 2, date="2027-01-10", kappa=0.7)
     archive_revision(rev2, archive_dir=root, now=NOW)
-    assert [(e.revision, e.figures["panel"]["reproducibility.fleiss_kappa"]["estimate"]) for e in list_entries(root)] == [
-        (1, 0.8), (2, 0.7)
-    ]
+    assert [
+        (e.revision, e.figures["panel"]["reproducibility.fleiss_kappa"]["estimate"])
+        for e in list_entries(root)
+    ] == [(1, 0.8), (2, 0.7)]
     # the CLI reports the refusal with exit code 5
     r = _run("archive", str(rev2), "--archive", str(root))
     assert r.returncode == 5, r.stderr
@@ -126,13 +150,18 @@ def test_index_rows_cannot_be_changed_or_deleted(tmp_path: Path) -> None:
 def test_archive_location(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     rev = make_revision(tmp_path / "project" / "output")
     monkeypatch.delenv("REPORTGEN_ARCHIVE", raising=False)
-    assert resolve_archive_dir(None, revision_dir=rev) == (tmp_path / "project" / "archive").resolve()
-    assert resolve_archive_dir(
-        None, study_path=tmp_path / "project" / "studies" / "x" / "study.yaml"
-    ) == (tmp_path / "project" / "archive").resolve()
+    assert (
+        resolve_archive_dir(None, revision_dir=rev) == (tmp_path / "project" / "archive").resolve()
+    )
+    assert (
+        resolve_archive_dir(None, study_path=tmp_path / "project" / "studies" / "x" / "study.yaml")
+        == (tmp_path / "project" / "archive").resolve()
+    )
     monkeypatch.setenv("REPORTGEN_ARCHIVE", str(tmp_path / "elsewhere"))
     assert resolve_archive_dir(None, revision_dir=rev) == (tmp_path / "elsewhere").resolve()
-    assert resolve_archive_dir(tmp_path / "given", revision_dir=rev) == (tmp_path / "given").resolve()
+    assert (
+        resolve_archive_dir(tmp_path / "given", revision_dir=rev) == (tmp_path / "given").resolve()
+    )
     monkeypatch.delenv("REPORTGEN_ARCHIVE")
     r = _run("archive", str(rev), "--quiet", env={"REPORTGEN_ARCHIVE": ""})
     assert r.returncode == 0, r.stderr
@@ -168,9 +197,18 @@ def test_bad_revision_folders_are_refused(tmp_path: Path) -> None:
 def test_kill_during_copy_leaves_no_half_entry(tmp_path: Path) -> None:
     root = tmp_path / "archive"
     rev = make_revision(tmp_path / "output", big_file_bytes=1 << 20)
-    proc = _spawn("archive", str(rev), "--archive", str(root), env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "copy:60"})
+    proc = _spawn(
+        "archive", str(rev), "--archive", str(root), env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "copy:60"}
+    )
     study_dir = root / "SEAL-CHECK"
-    _wait_for(lambda: study_dir.is_dir() and any(p.name.startswith(".partial-") and any(p.rglob("*")) for p in study_dir.iterdir()))
+    _wait_for(
+        lambda: (
+            study_dir.is_dir()
+            and any(
+                p.name.startswith(".partial-") and any(p.rglob("*")) for p in study_dir.iterdir()
+            )
+        )
+    )
     _kill(proc)
     assert proc.returncode == -signal.SIGKILL
 
@@ -192,7 +230,13 @@ def test_kill_during_copy_leaves_no_half_entry(tmp_path: Path) -> None:
 def test_kill_between_rename_and_commit_is_rolled_forward(tmp_path: Path) -> None:
     root = tmp_path / "archive"
     rev = make_revision(tmp_path / "output", "SEAL-CHECK", 1)
-    proc = _spawn("archive", str(rev), "--archive", str(root), env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "commit:60"})
+    proc = _spawn(
+        "archive",
+        str(rev),
+        "--archive",
+        str(root),
+        env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "commit:60"},
+    )
     _wait_for(lambda: (root / "SEAL-CHECK" / "rev1").is_dir())
     _kill(proc)
     assert _rows(root) == []  # the transaction died with the process
@@ -210,7 +254,13 @@ def test_kill_between_rename_and_commit_is_rolled_forward(tmp_path: Path) -> Non
 def test_a_changed_folder_is_not_rolled_forward(tmp_path: Path) -> None:
     root = tmp_path / "archive"
     rev = make_revision(tmp_path / "output", "SEAL-CHECK", 1)
-    proc = _spawn("archive", str(rev), "--archive", str(root), env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "commit:60"})
+    proc = _spawn(
+        "archive",
+        str(rev),
+        "--archive",
+        str(root),
+        env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "commit:60"},
+    )
     final = root / "SEAL-CHECK" / "rev1"
     _wait_for(lambda: final.is_dir())
     _kill(proc)
@@ -218,16 +268,29 @@ def test_a_changed_folder_is_not_rolled_forward(tmp_path: Path) -> None:
     os.chmod(final / "results.json", 0o644)
     (final / "results.json").write_text("{}")
     messages: list[str] = []
-    archive_revision(make_revision(tmp_path / "output", "CRIMP-CHECK", 1), archive_dir=root, progress=messages.append)
+    archive_revision(
+        make_revision(tmp_path / "output", "CRIMP-CHECK", 1),
+        archive_dir=root,
+        progress=messages.append,
+    )
     assert _rows(root) == [("CRIMP-CHECK", 1)]
     assert any("do not match" in m for m in messages)
 
 
 def test_two_studies_archived_concurrently(tmp_path: Path) -> None:
     root = tmp_path / "archive"
-    revs = [make_revision(tmp_path / "output", sid, 1) for sid in ("SEAL-CHECK", "CRIMP-CHECK", "LABEL-CHECK")]
+    revs = [
+        make_revision(tmp_path / "output", sid, 1)
+        for sid in ("SEAL-CHECK", "CRIMP-CHECK", "LABEL-CHECK")
+    ]
     procs = [
-        _spawn("archive", str(r), "--archive", str(root), env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "copy:0.5"})
+        _spawn(
+            "archive",
+            str(r),
+            "--archive",
+            str(root),
+            env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "copy:0.5"},
+        )
         for r in revs
     ]
     outs = [p.communicate(timeout=120) for p in procs]
@@ -241,7 +304,13 @@ def test_same_revision_archived_twice_at_once_one_wins(tmp_path: Path) -> None:
     root = tmp_path / "archive"
     rev = make_revision(tmp_path / "output")
     procs = [
-        _spawn("archive", str(rev), "--archive", str(root), env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "copy:0.5"})
+        _spawn(
+            "archive",
+            str(rev),
+            "--archive",
+            str(root),
+            env={"REPORTGEN_TEST_ARCHIVE_PAUSE": "copy:0.5"},
+        )
         for _ in range(2)
     ]
     outs = [p.communicate(timeout=120) for p in procs]
@@ -252,6 +321,8 @@ def test_same_revision_archived_twice_at_once_one_wins(tmp_path: Path) -> None:
 
 def test_drafts_are_not_archived(tmp_path: Path) -> None:
     rev = make_revision(tmp_path / "output")
-    (rev / "SEAL-CHECK-rev1.html").write_text('<html><body class="draft"><p>DRAFT</p></body></html>')
+    (rev / "SEAL-CHECK-rev1.html").write_text(
+        '<html><body class="draft"><p>DRAFT</p></body></html>'
+    )
     with pytest.raises(InputError, match="drafts are not archived"):
         archive_revision(rev, archive_dir=tmp_path / "archive")

@@ -28,7 +28,9 @@ def _warnings(path: Path) -> list[dict[str, str]]:
 
 def test_a_label_instead_of_a_code_is_refused_with_the_code_named(make_study) -> None:
     """Defect: 'Scrap' (the label of X) was refused with only the list of codes."""
-    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     rows[0] = (*rows[0][:3], "Scrap")
     rows[1] = (*rows[1][:3], "standard")
     study = load_study(make_study(ratings_rows=rows))
@@ -39,12 +41,17 @@ def test_a_label_instead_of_a_code_is_refused_with_the_code_named(make_study) ->
         (2, "unknown category 'Scrap'"),
         (3, "unknown category 'standard'"),
     ]
-    assert problems[0].hint == "'Scrap' is the label of category 'X': write the code. declared codes: P, S, X"
+    assert (
+        problems[0].hint
+        == "'Scrap' is the label of category 'X': write the code. declared codes: P, S, X"
+    )
     assert problems[1].hint.startswith("'standard' is the label of category 'S'")
 
 
 def test_a_near_code_still_gets_did_you_mean(make_study) -> None:
-    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     rows[0] = (*rows[0][:3], "p")
     with pytest.raises(InputError) as exc:
         load_ratings(load_study(make_study(ratings_rows=rows)))
@@ -91,7 +98,9 @@ def test_a_rater_without_any_rating_is_a_warning(make_study) -> None:
     """Defect: with `missing: allow`, a rater with no rating at all passed `check --strict`."""
     rows = [
         r
-        for r in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+        for r in default_ratings(
+            default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+        )
         if r[1] != "R3"
     ]
     w = _warnings(make_study(ratings_rows=rows, missing="allow"))
@@ -102,7 +111,9 @@ def test_a_rater_without_any_rating_is_a_warning(make_study) -> None:
 def test_a_trial_without_any_rating_is_a_warning(make_study) -> None:
     rows = [
         r
-        for r in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 3, ["P", "S", "X"])
+        for r in default_ratings(
+            default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 3, ["P", "S", "X"]
+        )
         if r[2] != 3
     ]
     w = _warnings(make_study(ratings_rows=rows, trials=3, missing="allow"))
@@ -136,17 +147,27 @@ def test_lost_leading_zeros_are_named_in_the_hint(make_study) -> None:
     """Found with an .xlsx whose item column Excel had turned into numbers: the reference's
     '007' met the ratings' '7'; the message now says what probably happened."""
     ref = [(f"{i:03d}", c) for i, c in zip(range(1, 31), ["P", "S", "X"] * 10, strict=True)]
-    rows = default_ratings([(str(int(i)), c) for i, c in ref], ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        [(str(int(i)), c) for i, c in ref], ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     with pytest.raises(InputError) as exc:
         load_ratings(load_study(make_study(ratings_rows=rows, reference_rows=ref)))
     first = exc.value.problems()[0]
-    assert (first.location.line, first.message) == (2, "reference given for item '001', which has no ratings")
-    assert first.hint == "the ratings have item '1': were leading zeros lost in a spreadsheet? keep item ids as text"
+    assert (first.location.line, first.message) == (
+        2,
+        "reference given for item '001', which has no ratings",
+    )
+    assert (
+        first.hint
+        == "the ratings have item '1': were leading zeros lost in a spreadsheet? keep item ids as text"
+    )
 
 
 def test_an_unclosed_quote_names_the_line_where_it_opens(make_study) -> None:
     """Defect: a stray quote in a comment column was reported at the last line of the file."""
-    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     lines = ["item,rater,trial,rating,comment"] + [f"{i},{r},{t},{c}," for i, r, t, c in rows]
     lines[7] += '"edge chipped'  # line 8 of the file
     with pytest.raises(InputError) as exc:
@@ -158,23 +179,33 @@ def test_an_unclosed_quote_names_the_line_where_it_opens(make_study) -> None:
 
 def test_trial_written_as_a_whole_float_is_that_trial(make_study) -> None:
     """Found with a CSV written from a spreadsheet column of numbers: trial '1.0' was refused."""
-    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     text = "item,rater,trial,rating\n" + "".join(f"{i},{r},{t}.0,{c}\n" for i, r, t, c in rows)
     plain = load_ratings(load_study(make_study(ratings_rows=rows)))
-    floats = load_ratings(load_study(make_study(Path(make_study()).parent.parent / "f", ratings_text=text)))
+    floats = load_ratings(
+        load_study(make_study(Path(make_study()).parent.parent / "f", ratings_text=text))
+    )
     assert (floats.codes == plain.codes).all()
 
 
 def test_a_row_that_cannot_be_placed_is_not_also_reported_as_absent_ratings(make_study) -> None:
     """Defect: one bad trial cell ('x') gave its own error plus 'no rating for item … trial 1'
     for the cell that row stood for; a bad trial column gave one error per rater and trial on top."""
-    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     lines = [f"{i},{r},{t},{c}" for i, r, t, c in rows]
     lines[2] = lines[2].replace(",1,", ",x,")  # item I03, R1: trial unreadable
     lines[4] = lines[4].replace(",R1,", ",R7,")  # undeclared rater
     del lines[9]  # item I10, R1, trial 1: really absent
     with pytest.raises(InputError) as exc:
-        load_ratings(load_study(make_study(ratings_text="item,rater,trial,rating\n" + "\n".join(lines) + "\n")))
+        load_ratings(
+            load_study(
+                make_study(ratings_text="item,rater,trial,rating\n" + "\n".join(lines) + "\n")
+            )
+        )
     got = [(p.location.line, p.message) for p in exc.value.problems()]
     assert got == [
         (4, "trial must be a whole number from 1 to 2, got 'x'"),
@@ -186,12 +217,22 @@ def test_a_row_that_cannot_be_placed_is_not_also_reported_as_absent_ratings(make
 @pytest.mark.parametrize(
     ("name", "data", "message"),
     [
-        ("ratings.csv", b"item,rater,trial,rating\n", "the study definition must be a mapping of keys, got str"),
-        ("ratings.xlsx", b"PK\x03\x04rest-of-a-zip", "this is a workbook or other binary file, not a study definition"),
+        (
+            "ratings.csv",
+            b"item,rater,trial,rating\n",
+            "the study definition must be a mapping of keys, got str",
+        ),
+        (
+            "ratings.xlsx",
+            b"PK\x03\x04rest-of-a-zip",
+            "this is a workbook or other binary file, not a study definition",
+        ),
         ("report.pdf", b"%PDF-1.7\n", "this is a PDF, not a study definition"),
     ],
 )
-def test_giving_another_file_as_the_study_says_so(run_cli, tmp_path: Path, name: str, data: bytes, message: str) -> None:
+def test_giving_another_file_as_the_study_says_so(
+    run_cli, tmp_path: Path, name: str, data: bytes, message: str
+) -> None:
     """Defect: `check ratings.xlsx` said 'not UTF-8 text … save the study definition as UTF-8'."""
     path = tmp_path / name
     path.write_bytes(data)
@@ -208,7 +249,10 @@ def test_an_overlong_study_id_is_refused_before_any_work(make_study, run_cli) ->
     assert code == 2 and "study.id: the id has 250 characters; at most 100 are allowed" in err
     out = Path(path).parent / "out"
     assert run_cli("build", path, "-o", out, "--no-pdf", "-q")[0] == 2 and not out.exists()
-    assert load_study(make_study(Path(path).parent.parent / "ok", study={"id": "L" * 100})).id == "L" * 100
+    assert (
+        load_study(make_study(Path(path).parent.parent / "ok", study={"id": "L" * 100})).id
+        == "L" * 100
+    )
 
 
 def test_init_keeps_a_long_folder_name_within_the_id_limit(run_cli, tmp_path: Path) -> None:
@@ -227,7 +271,9 @@ def test_formula_cells_without_saved_values_are_named(make_study) -> None:
 
     import openpyxl
 
-    rows = default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+    rows = default_ratings(
+        default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+    )
     wb = openpyxl.Workbook()
     ws = wb.active
     ws.append(["item", "rater", "trial", "rating"])

@@ -33,7 +33,9 @@ def archived(tmp_path: Path) -> Path:
 
 
 def _snapshot(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+    return {
+        str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()
+    }
 
 
 # -- write_output (history -o, register --csv/--html, sign) ----------------------------------
@@ -84,7 +86,9 @@ def test_history_output_into_the_archive_exits_5(archived: Path, run_cli) -> Non
 # -- build into the archive, build --replace over files it did not write ----------------------
 
 
-def test_build_replace_never_touches_an_archived_revision(archived: Path, make_study, run_cli) -> None:
+def test_build_replace_never_touches_an_archived_revision(
+    archived: Path, make_study, run_cli
+) -> None:
     """Defect: `build --replace -o ARCHIVE` swapped out an archived revision folder (its PDF and
     archive-entry.json were deleted)."""
     root = archived.parent.parent
@@ -93,7 +97,9 @@ def test_build_replace_never_touches_an_archived_revision(archived: Path, make_s
     code, _, err = run_cli("build", study, "-o", root, "--replace", "--no-pdf", "-q")
     assert code == 5 and "is a reportgen archive" in err
     assert _snapshot(archived) == before and is_read_only(archived)
-    code, _, err = run_cli("build", make_study(study={"id": "OTHER", "revision": 1}), "-o", root, "--no-pdf", "-q")
+    code, _, err = run_cli(
+        "build", make_study(study={"id": "OTHER", "revision": 1}), "-o", root, "--no-pdf", "-q"
+    )
     assert code == 5 and not (root / "OTHER").exists()
 
 
@@ -102,7 +108,12 @@ def test_build_replace_keeps_files_it_did_not_write(make_study, run_cli, tmp_pat
     """Defect: `build --replace` deleted the signed copy `reportgen sign` had written beside the report."""
     study = make_study(bootstrap={"resamples": 0, "seed": 1})
     out = tmp_path / "out"
-    assert run_cli("build", study, "-o", out, "--no-pdf", "-q", "--generated-at", "2026-11-20T09:00:00Z")[0] == 0
+    assert (
+        run_cli(
+            "build", study, "-o", out, "--no-pdf", "-q", "--generated-at", "2026-11-20T09:00:00Z"
+        )[0]
+        == 0
+    )
     rev = out / "TEST-01" / "rev1"
     (rev / "TEST-01-rev1-signed.pdf").write_bytes(b"%PDF-1.7 signed copy\n")
     before = _snapshot(rev)
@@ -132,8 +143,21 @@ def test_sign_wrong_passphrase_prints_no_traceback(tmp_path: Path) -> None:
     pdf = tmp_path / "report.pdf"
     pdf.write_bytes(b"%PDF-1.7\n")
     proc = subprocess.run(
-        [sys.executable, "-m", "reportgen", "sign", str(pdf), "--key", str(p12), "--passphrase-env", "QA_PASS"],
-        capture_output=True, text=True, timeout=120, env={**os.environ, "QA_PASS": "wrong"},
+        [
+            sys.executable,
+            "-m",
+            "reportgen",
+            "sign",
+            str(pdf),
+            "--key",
+            str(p12),
+            "--passphrase-env",
+            "QA_PASS",
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        env={**os.environ, "QA_PASS": "wrong"},
     )
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr
@@ -179,7 +203,12 @@ def test_a_rater_with_no_rating_keeps_the_earlier_certification() -> None:
             "due_window_days": 30,
             "inspectors": [
                 {"rater": "R1", "name": "Ana Ruiz", "outcome": "not certified"},
-                {"rater": "R2", "name": "Ben Okafor", "outcome": "certified", "valid_until": "2028-01-31"},
+                {
+                    "rater": "R2",
+                    "name": "Ben Okafor",
+                    "outcome": "certified",
+                    "valid_until": "2028-01-31",
+                },
                 {"rater": "R3", "name": "Chen Wu", "outcome": "not certified"},
             ],
         },

@@ -18,7 +18,9 @@ from reportgen.archive import archive_revision
 from reportgen.history import load_history, render_history_html, render_history_pdf
 
 FONTS = Path(__file__).resolve().parent.parent / "templates" / "fonts"
-KOREAN = "김민준"  # Hangul: in the shipped Droid Sans Fallback, not in Debian's DroidSansFallbackFull
+KOREAN = (
+    "김민준"  # Hangul: in the shipped Droid Sans Fallback, not in Debian's DroidSansFallbackFull
+)
 
 
 def test_charts_use_the_shipped_fonts_even_when_the_machine_has_same_named_ones() -> None:
@@ -30,8 +32,13 @@ def test_charts_use_the_shipped_fonts_even_when_the_machine_has_same_named_ones(
     from reportgen.render.charts import _plt, _register_fonts, _style, _svg
 
     _register_fonts()
-    assert Path(font_manager.findfont("Droid Sans Fallback")).resolve() == (FONTS / "DroidSansFallback.ttf").resolve()
-    assert Path(font_manager.findfont("DejaVu Sans")).resolve() == (FONTS / "DejaVuSans.ttf").resolve()
+    assert (
+        Path(font_manager.findfont("Droid Sans Fallback")).resolve()
+        == (FONTS / "DroidSansFallback.ttf").resolve()
+    )
+    assert (
+        Path(font_manager.findfont("DejaVu Sans")).resolve() == (FONTS / "DejaVuSans.ttf").resolve()
+    )
     plt = _plt()
     _style(plt, "qa-korean")
     fig, ax = plt.subplots(figsize=(2, 1))
@@ -86,13 +93,26 @@ plan: {seed: 11}
         encoding="utf-8",
     )
     (tmp_path / "items.csv").write_text(
-        "item,reference,borderline\n" + "".join(f"W{i:02d},{'SP' if i % 3 == 0 else 'OK'},no\n" for i in range(1, 13)),
+        "item,reference,borderline\n"
+        + "".join(f"W{i:02d},{'SP' if i % 3 == 0 else 'OK'},no\n" for i in range(1, 13)),
         encoding="utf-8",
     )
-    code, _, err = run_cli("plan", study, "--items", tmp_path / "items.csv", "--output", tmp_path / "out",
-                           "--no-pdf", "-q", "--start", "2026-12-07")
+    code, _, err = run_cli(
+        "plan",
+        study,
+        "--items",
+        tmp_path / "items.csv",
+        "--output",
+        tmp_path / "out",
+        "--no-pdf",
+        "-q",
+        "--start",
+        "2026-12-07",
+    )
     assert code == 0, err
-    sheet = (tmp_path / "out" / "PLAN-FIRST" / "plan" / "sheets" / "W2-trial-1.html").read_text(encoding="utf-8")
+    sheet = (tmp_path / "out" / "PLAN-FIRST" / "plan" / "sheets" / "W2-trial-1.html").read_text(
+        encoding="utf-8"
+    )
     assert "김민준" in sheet and '"RG CJK"' in sheet
     # check still insists on the inputs
     code, _, err = run_cli("check", study)
@@ -120,18 +140,33 @@ def test_summary_sentence_counts_and_absent_raters(make_study, tmp_path: Path) -
     when = "2026-11-20T09:00:00Z"
     rows = [
         r
-        for r in default_ratings(default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"])
+        for r in default_ratings(
+            default_reference(30, ["P", "S", "X"]), ["R1", "R2", "R3"], 2, ["P", "S", "X"]
+        )
         if r[1] != "R3"
     ]
-    silent = load_study(make_study(tmp_path / "a", ratings_rows=rows, missing="allow", bootstrap={"resamples": 0, "seed": 1}))
+    silent = load_study(
+        make_study(
+            tmp_path / "a",
+            ratings_rows=rows,
+            missing="allow",
+            bootstrap={"resamples": 0, "seed": 1},
+        )
+    )
     folder = build_report(silent, output_dir=tmp_path / "out", generated_at=when, pdf=False)
     assert _studied((folder / "TEST-01-rev1.html").read_text(encoding="utf-8")) == (
         "3 raters rated 30 items 2 times each on an ordinal scale of 3 categories. "
         "60 of the 180 ratings are absent; R3 gave no rating at all."
     )
     one = load_study(
-        make_study(tmp_path / "b", study={"id": "ONE"}, n_items=1, trials=1, raters=["R1"],
-                   bootstrap={"resamples": 0, "seed": 1})
+        make_study(
+            tmp_path / "b",
+            study={"id": "ONE"},
+            n_items=1,
+            trials=1,
+            raters=["R1"],
+            bootstrap={"resamples": 0, "seed": 1},
+        )
     )
     folder = build_report(one, output_dir=tmp_path / "out", generated_at=when, pdf=False)
     assert _studied((folder / "ONE-rev1.html").read_text(encoding="utf-8")) == (
@@ -139,7 +174,9 @@ def test_summary_sentence_counts_and_absent_raters(make_study, tmp_path: Path) -
     )
 
 
-def test_a_bad_source_date_epoch_is_bad_input_not_an_internal_error(make_study, run_cli, monkeypatch) -> None:
+def test_a_bad_source_date_epoch_is_bad_input_not_an_internal_error(
+    make_study, run_cli, monkeypatch
+) -> None:
     """Defect: SOURCE_DATE_EPOCH=abc ended `build` with exit 70 (matplotlib's int() failed)."""
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "abc")
     out = Path(make_study()).parent / "out"
@@ -155,10 +192,15 @@ def test_history_marks_a_study_without_date(tmp_path: Path) -> None:
 
     root = tmp_path / "archive"
     when = dt.datetime(2026, 3, 1, 12, 0, tzinfo=dt.UTC)
-    archive_revision(make_revision(tmp_path / "output", "SEAL-CHECK", 1, date=None), archive_dir=root, now=when)
+    archive_revision(
+        make_revision(tmp_path / "output", "SEAL-CHECK", 1, date=None), archive_dir=root, now=when
+    )
     entries, series = load_history(root)
     text = format_text(entries, series)
-    assert "2026-03-01  SEAL-CHECK rev1" in text and "[no study date: the archive date is shown]" in text
+    assert (
+        "2026-03-01  SEAL-CHECK rev1" in text
+        and "[no study date: the archive date is shown]" in text
+    )
     html = render_history_html(entries, series, generated_at=when, filters={})
     assert "2026-03-01 (archived; no study date)" in html
 
@@ -178,7 +220,8 @@ plan: {{seed: 3}}
         encoding="utf-8",
     )
     (tmp_path / "items.csv").write_text(
-        "item,reference\n" + "".join(f"W{i:02d},{'SP' if i % 3 == 0 else 'OK'}\n" for i in range(1, 13)),
+        "item,reference\n"
+        + "".join(f"W{i:02d},{'SP' if i % 3 == 0 else 'OK'}\n" for i in range(1, 13)),
         encoding="utf-8",
     )
     return study
@@ -187,15 +230,35 @@ plan: {{seed: 3}}
 def test_plan_refuses_raters_whose_sheet_files_would_clash(tmp_path: Path, run_cli) -> None:
     """Defect: rater ids 'B M' and 'B_M' both map to run sheets named B_M-trial-<n>."""
     study = _plan_study(tmp_path, '["B M", "B_M"]')
-    code, _, err = run_cli("plan", study, "--items", tmp_path / "items.csv", "--output", tmp_path / "out", "--no-pdf", "-q")
+    code, _, err = run_cli(
+        "plan",
+        study,
+        "--items",
+        tmp_path / "items.csv",
+        "--output",
+        tmp_path / "out",
+        "--no-pdf",
+        "-q",
+    )
     assert code == 2
-    assert "raters 'B M' and 'B_M' would get run sheet files of the same name (B_M-trial-1.csv)" in err
+    assert (
+        "raters 'B M' and 'B_M' would get run sheet files of the same name (B_M-trial-1.csv)" in err
+    )
     assert not (tmp_path / "out").exists()
 
 
 def test_an_overlong_rater_id_is_refused(tmp_path: Path, run_cli) -> None:
     """Defect: a 260-character rater id ended `plan` with exit 70 ('File name too long')."""
     study = _plan_study(tmp_path, f'["{"R" * 260}", R2]')
-    code, _, err = run_cli("plan", study, "--items", tmp_path / "items.csv", "--output", tmp_path / "out", "--no-pdf", "-q")
+    code, _, err = run_cli(
+        "plan",
+        study,
+        "--items",
+        tmp_path / "items.csv",
+        "--output",
+        tmp_path / "out",
+        "--no-pdf",
+        "-q",
+    )
     assert code == 2 and "raters[0]: rater id has 260 characters; at most 64 are allowed" in err
     assert not (tmp_path / "out").exists()

@@ -44,7 +44,12 @@ def test_recompute_follows_inputs_above_the_study_folder(tmp_path: Path) -> None
         "reference: reference.csv", "reference: ../ref/reference.csv"
     )
     got, study = recompute(
-        {"study.yaml": text.encode(), "ratings.csv": ratings, "reference.csv": reference, "results.json": b"{}"},
+        {
+            "study.yaml": text.encode(),
+            "ratings.csv": ratings,
+            "reference.csv": reference,
+            "results.json": b"{}",
+        },
         "study.yaml",
     )
     assert study.ratings_path.name == "ratings.csv"
@@ -56,10 +61,13 @@ def test_recompute_reads_the_attached_copy_of_an_absolute_path(tmp_path: Path) -
     text, ratings, reference = _inputs(tmp_path)
     decoy = tmp_path / "elsewhere" / "ratings.csv"
     decoy.parent.mkdir()
-    decoy.write_text("item,rater,trial,rating\nX,L1,1,G\n", encoding="utf-8")  # not the attached data
+    decoy.write_text(
+        "item,rater,trial,rating\nX,L1,1,G\n", encoding="utf-8"
+    )  # not the attached data
     text = text.replace("ratings: ratings.csv", f'ratings: "{decoy}"   # on the build machine')
     got, study = recompute(
-        {"study.yaml": text.encode(), "ratings.csv": ratings, "reference.csv": reference}, "study.yaml"
+        {"study.yaml": text.encode(), "ratings.csv": ratings, "reference.csv": reference},
+        "study.yaml",
     )
     assert study.ratings_path != decoy.resolve()
     _same_figures(got, _expected(tmp_path))
@@ -72,7 +80,9 @@ def test_recompute_tells_apart_two_inputs_with_one_file_name(tmp_path: Path) -> 
     text = text.replace("ratings: ratings.csv", "ratings: a/data.csv").replace(
         "reference: reference.csv", "reference: b/data.csv"
     )
-    got, _ = recompute({"study.yaml": text.encode(), "data.csv": ratings, "data-2.csv": reference}, "study.yaml")
+    got, _ = recompute(
+        {"study.yaml": text.encode(), "data.csv": ratings, "data-2.csv": reference}, "study.yaml"
+    )
     _same_figures(got, _expected(tmp_path))
 
 
@@ -108,9 +118,15 @@ def test_a_draft_is_said_to_be_a_draft(tmp_path: Path) -> None:
 
     study = load_study(study_files(tmp_path / "study"))
     build_report(study, output_dir=tmp_path / "out", generated_at=GENERATED_AT, pdf=False)
-    folder = build_report(study, output_dir=tmp_path / "out", generated_at=GENERATED_AT, replace=True)
+    folder = build_report(
+        study, output_dir=tmp_path / "out", generated_at=GENERATED_AT, replace=True
+    )
     v = verify_report(folder / "LUG-CHECK-rev1.pdf")
     assert v.ok and v.draft and v.as_dict()["draft"] is True
-    assert v.format().splitlines()[0].endswith(
-        "GENUINE — every check holds (a DRAFT built with --replace, not a released revision)"
+    assert (
+        v.format()
+        .splitlines()[0]
+        .endswith(
+            "GENUINE — every check holds (a DRAFT built with --replace, not a released revision)"
+        )
     )

@@ -17,7 +17,9 @@ pytestmark = [
     pytest.mark.slow,
     pytest.mark.render,
     # WeasyPrint 70 leaves its ICC profile file open while building the fixture reports
-    pytest.mark.filterwarnings("ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning"),
+    pytest.mark.filterwarnings(
+        "ignore::ResourceWarning", "ignore::pytest.PytestUnraisableExceptionWarning"
+    ),
 ]
 
 
@@ -36,7 +38,9 @@ def _by_check(v) -> dict[str, tuple[bool, str, tuple[str, ...]]]:  # type: ignor
 
 
 def _cli(*args: str) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-m", "reportgen", *args], capture_output=True, text=True, timeout=300)
+    return subprocess.run(
+        [sys.executable, "-m", "reportgen", *args], capture_output=True, text=True, timeout=300
+    )
 
 
 def test_genuine_report(report_a: Path) -> None:
@@ -44,13 +48,19 @@ def test_genuine_report(report_a: Path) -> None:
     assert v.ok, v.format()
     checks = _by_check(v)
     assert (v.study_id, v.revision) == ("LUG-CHECK", 1)
-    assert checks["attachments"] == (True, "ratings.csv, reference.csv, results.json, study.yaml", ())
+    assert checks["attachments"] == (
+        True,
+        "ratings.csv, reference.csv, results.json, study.yaml",
+        (),
+    )
     assert checks["identity"][1] == "the attachments are of LUG-CHECK rev1, as the report says"
     assert checks["hashes"][1] == "3 attached input(s) have the SHA-256 printed in the report"
     assert checks["recompute"][1].startswith("recomputed with reportgen ")
     assert checks["signature"] == (True, "none: the report is not signed", ())
     # the headline figures: 2 panel figures, 2 per rater for 3 raters, 3 criterion checks
-    assert len(printed_figures(json.loads(attachments_of(report_a)["results.json"]))) == 2 + 2 * 3 + 3
+    assert (
+        len(printed_figures(json.loads(attachments_of(report_a)["results.json"]))) == 2 + 2 * 3 + 3
+    )
     r = _cli("verify", str(report_a))
     assert r.returncode == 0, r.stdout + r.stderr
     assert "LUG-CHECK rev1: GENUINE" in r.stdout
@@ -89,20 +99,36 @@ def test_edited_results(report_a: Path, tmp_path: Path) -> None:
     assert checks["recompute"][1] == (
         "edited results: 1 value(s) in results.json differ from a recomputation from the attached inputs"
     )
-    assert checks["recompute"][2][0].startswith(f"reproducibility.fleiss_kappa.estimate: results.json has {old + 0.05}")
+    assert checks["recompute"][2][0].startswith(
+        f"reproducibility.fleiss_kappa.estimate: results.json has {old + 0.05}"
+    )
     assert checks["printed"][0] is False
-    assert any(d.startswith("reproducibility.fleiss_kappa: results.json gives ") for d in checks["printed"][2])
+    assert any(
+        d.startswith("reproducibility.fleiss_kappa: results.json gives ")
+        for d in checks["printed"][2]
+    )
 
 
 def test_tiny_numeric_noise_is_tolerated_but_not_more() -> None:
     a = {"x": {"estimate": 0.5, "items": 12, "ok": True, "w": [1.0, None]}}
-    assert compare_results(a, {"x": {"estimate": 0.5 + 1e-13, "items": 12, "ok": True, "w": [1.0, None]}}) == []
-    assert compare_results(a, {"x": {"estimate": 0.5 + 1e-9, "items": 12, "ok": True, "w": [1.0, None]}}) == [
-        ("x.estimate", 0.5, 0.5 + 1e-9)
+    assert (
+        compare_results(
+            a, {"x": {"estimate": 0.5 + 1e-13, "items": 12, "ok": True, "w": [1.0, None]}}
+        )
+        == []
+    )
+    assert compare_results(
+        a, {"x": {"estimate": 0.5 + 1e-9, "items": 12, "ok": True, "w": [1.0, None]}}
+    ) == [("x.estimate", 0.5, 0.5 + 1e-9)]
+    assert compare_results(a, {"x": {"estimate": 0.5, "items": 12, "ok": 1, "w": [1.0, None]}}) == [
+        ("x.ok", True, 1)
     ]
-    assert compare_results(a, {"x": {"estimate": 0.5, "items": 12, "ok": 1, "w": [1.0, None]}}) == [("x.ok", True, 1)]
-    assert compare_results(a, {"x": {"estimate": 0.5, "items": 12, "ok": True, "w": [1.0]}}) == [("x.w (length)", 2, 1)]
-    assert compare_results(a, {"x": {"estimate": 0.5, "ok": True, "w": [1.0, None]}}) == [("x.items", 12, "(absent)")]
+    assert compare_results(a, {"x": {"estimate": 0.5, "items": 12, "ok": True, "w": [1.0]}}) == [
+        ("x.w (length)", 2, 1)
+    ]
+    assert compare_results(a, {"x": {"estimate": 0.5, "ok": True, "w": [1.0, None]}}) == [
+        ("x.items", 12, "(absent)")
+    ]
     assert compare_results({"n": 3}, {"n": 3.0}) == []
 
 
@@ -110,7 +136,9 @@ def test_stripped_attachments(report_a: Path, tmp_path: Path) -> None:
     v = verify_report(rewrite_attachments(report_a, tmp_path / "bare.pdf", {}))
     checks = _by_check(v)
     assert checks["attachments"][0] is False
-    assert checks["attachments"][1].startswith("the PDF carries no attachments: the study definition, the ratings and results.json were stripped")
+    assert checks["attachments"][1].startswith(
+        "the PDF carries no attachments: the study definition, the ratings and results.json were stripped"
+    )
     r = _cli("verify", str(tmp_path / "bare.pdf"))
     assert r.returncode == 1 and "were stripped" in r.stdout
 
@@ -118,9 +146,13 @@ def test_stripped_attachments(report_a: Path, tmp_path: Path) -> None:
     del atts["reference.csv"]
     checks = _by_check(verify_report(rewrite_attachments(report_a, tmp_path / "noref.pdf", atts)))
     assert checks["hashes"][0] is False
-    assert checks["hashes"][2][0].startswith("attachment stripped: the report lists an input with SHA-256 ")
+    assert checks["hashes"][2][0].startswith(
+        "attachment stripped: the report lists an input with SHA-256 "
+    )
     assert checks["recompute"] == (
-        False, "cannot recompute: the reference file 'reference.csv' that the study definition names is not attached", ()
+        False,
+        "cannot recompute: the reference file 'reference.csv' that the study definition names is not attached",
+        (),
     )
 
     atts = attachments_of(report_a)
@@ -135,15 +167,23 @@ def test_report_with_another_studys_data(report_a: Path, report_b: Path, tmp_pat
     v = verify_report(swapped)
     checks = _by_check(v)
     assert checks["identity"] == (
-        False, "another study's data: the attachments are of LUG-AUDIT rev1, but the report is of LUG-CHECK rev1", ()
+        False,
+        "another study's data: the attachments are of LUG-AUDIT rev1, but the report is of LUG-CHECK rev1",
+        (),
     )
     assert checks["hashes"][0] is False  # LUG-AUDIT's ratings differ from what LUG-CHECK lists
-    assert checks["recompute"][0] is True  # B's data reproduce B's results: only the pairing is wrong
+    assert (
+        checks["recompute"][0] is True
+    )  # B's data reproduce B's results: only the pairing is wrong
     assert checks["printed"][0] is False
     r = _cli("verify", str(swapped), "--json")
     assert r.returncode == 1
     out = json.loads(r.stdout)
-    assert out["genuine"] is False and [f["check"] for f in out["findings"] if not f["ok"]] == ["identity", "hashes", "printed"]
+    assert out["genuine"] is False and [f["check"] for f in out["findings"] if not f["ok"]] == [
+        "identity",
+        "hashes",
+        "printed",
+    ]
 
 
 def test_not_a_pdf(tmp_path: Path, report_a: Path) -> None:
@@ -156,7 +196,10 @@ def test_not_a_pdf(tmp_path: Path, report_a: Path) -> None:
     truncated.write_bytes(report_a.read_bytes()[:2000])
     r = _cli("verify", str(truncated))
     assert r.returncode == 1, r.stdout + r.stderr
-    assert "NOT GENUINE" in r.stdout and "FAIL  readable: the PDF is damaged and cannot be read" in r.stdout
+    assert (
+        "NOT GENUINE" in r.stdout
+        and "FAIL  readable: the PDF is damaged and cannot be read" in r.stdout
+    )
 
 
 def test_printed_hashes_survive_wrapped_table_cells() -> None:

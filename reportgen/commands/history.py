@@ -14,7 +14,9 @@ def _when(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.d
     try:
         t = dt.datetime.fromisoformat(value.replace("Z", "+00:00"))
     except ValueError:
-        raise click.BadParameter(f"{value!r} is not a time; write e.g. 2026-11-20T10:00:00Z") from None
+        raise click.BadParameter(
+            f"{value!r} is not a time; write e.g. 2026-11-20T10:00:00Z"
+        ) from None
     return t if t.tzinfo else t.replace(tzinfo=dt.UTC)
 
 
@@ -35,7 +37,12 @@ def _when(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.d
     default=None,
     help="Write the trend report to FILE.html or FILE.pdf (default: a summary on the terminal).",
 )
-@click.option("--generated-at", callback=_when, metavar="TIME", help="Time printed in the report (default: now, UTC).")
+@click.option(
+    "--generated-at",
+    callback=_when,
+    metavar="TIME",
+    help="Time printed in the report (default: now, UTC).",
+)
 def command(
     archive_dir: Path | None,
     characteristic: str | None,
@@ -56,10 +63,15 @@ def command(
         return
     suffix = output.suffix.lower()
     if suffix not in (".html", ".htm", ".pdf"):
-        raise InputError.single(output, "the trend report is written as .html or .pdf", key="--output")
+        raise InputError.single(
+            output, "the trend report is written as .html or .pdf", key="--output"
+        )
     when = generated_at or dt.datetime.now(dt.UTC).replace(microsecond=0)
     html = render_history_html(
-        entries, series, generated_at=when, filters={"characteristic": characteristic, "station": station}
+        entries,
+        series,
+        generated_at=when,
+        filters={"characteristic": characteristic, "station": station},
     )
     data = render_history_pdf(html, generated_at=when) if suffix == ".pdf" else html.encode("utf-8")
     write_output(output, data)

@@ -185,7 +185,10 @@ def command(
     from ..study import MAX_STUDY_ID
 
     if study_id is None:
-        study_id = re.sub(r"[^A-Za-z0-9._-]+", "-", folder.resolve().name)[:MAX_STUDY_ID].strip("-.") or "study"
+        study_id = (
+            re.sub(r"[^A-Za-z0-9._-]+", "-", folder.resolve().name)[:MAX_STUDY_ID].strip("-.")
+            or "study"
+        )
     elif not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", study_id):
         raise click.BadParameter("letters, digits, '-', '_' and '.' only", param_hint="--id")
     elif len(study_id) > MAX_STUDY_ID:
@@ -216,13 +219,19 @@ def command(
         for p in written:
             p.unlink()
         if str(exc.filename) not in {str(folder / name) for name in FILES}:  # mkdir met a file
-            raise InputError.single(folder, f"cannot create the folder: {exc.filename} is a file") from None
+            raise InputError.single(
+                folder, f"cannot create the folder: {exc.filename} is a file"
+            ) from None
         raise ExistsError(f"{exc.filename} already exists; init never overwrites files") from None
     except OSError as exc:
         for p in written:
             p.unlink(missing_ok=True)
         blocker = next((p for p in (folder, *folder.parents) if p.exists()), None)
-        why = f"{blocker} is a file, not a folder" if blocker and not blocker.is_dir() else (exc.strerror or str(exc))
+        why = (
+            f"{blocker} is a file, not a folder"
+            if blocker and not blocker.is_dir()
+            else (exc.strerror or str(exc))
+        )
         raise InputError.single(folder, f"cannot write the study here: {why}") from None
     click.echo(
         f"wrote {folder / 'study.yaml'}, {folder / 'ratings.csv'} ({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}"

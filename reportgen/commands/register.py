@@ -25,7 +25,13 @@ def _date(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.d
     default=None,
     help="Archive folder (default: $REPORTGEN_ARCHIVE, else ./archive).",
 )
-@click.option("--as-of", "as_of", callback=_date, metavar="DATE", help="Day the status is for (default: today, UTC).")
+@click.option(
+    "--as-of",
+    "as_of",
+    callback=_date,
+    metavar="DATE",
+    help="Day the status is for (default: today, UTC).",
+)
 @click.option(
     "--due-within",
     type=click.IntRange(min=0),
@@ -35,8 +41,18 @@ def _date(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.d
 )
 @click.option("--characteristic", default=None, help="Only this characteristic.")
 @click.option("--station", default=None, help="Only this inspection station.")
-@click.option("--csv", "csv_path", type=click.Path(path_type=Path, dir_okay=False), help="Also write the register as CSV.")
-@click.option("--html", "html_path", type=click.Path(path_type=Path, dir_okay=False), help="Also write a printable HTML page.")
+@click.option(
+    "--csv",
+    "csv_path",
+    type=click.Path(path_type=Path, dir_okay=False),
+    help="Also write the register as CSV.",
+)
+@click.option(
+    "--html",
+    "html_path",
+    type=click.Path(path_type=Path, dir_okay=False),
+    help="Also write a printable HTML page.",
+)
 @click.option(
     "--fail-on",
     type=click.Choice(["expired", "due"]),
@@ -63,7 +79,9 @@ def command(
 
     root = resolve_archive_dir(archive_dir)
     day = as_of or dt.datetime.now(dt.UTC).date()
-    reg = load_register(root, as_of=day, due_within=due_within, characteristic=characteristic, station=station)
+    reg = load_register(
+        root, as_of=day, due_within=due_within, characteristic=characteristic, station=station
+    )
     if not quiet:
         click.echo(format_table(reg), nl=False)
     if csv_path is not None:
@@ -74,4 +92,6 @@ def command(
         hits = reg.matching(FAIL_ON[fail_on])
         if hits:
             names = "; ".join(f"{h.inspector} ({h.characteristic}): {h.status}" for h in hits)
-            raise CheckFailed(f"{len(hits)} certification(s) {'due or expired' if fail_on == 'due' else 'expired'}: {names}")
+            raise CheckFailed(
+                f"{len(hits)} certification(s) {'due or expired' if fail_on == 'due' else 'expired'}: {names}"
+            )

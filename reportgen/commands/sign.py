@@ -29,10 +29,19 @@ import click
     default=None,
     help="Signed PDF to write (default: REPORT-signed.pdf beside the report; never overwritten).",
 )
-@click.option("--reason", default=None, help="Reason recorded in the signature (default: sign-off of the report).")
+@click.option(
+    "--reason",
+    default=None,
+    help="Reason recorded in the signature (default: sign-off of the report).",
+)
 @click.option("--location", default=None, help="Place of signing recorded in the signature.")
 def command(
-    report: Path, key: Path, passphrase_env: str | None, output: Path | None, reason: str | None, location: str | None
+    report: Path,
+    key: Path,
+    passphrase_env: str | None,
+    output: Path | None,
+    reason: str | None,
+    location: str | None,
 ) -> None:
     """Sign a report PDF (for example to sign off inspector certification).
 
@@ -47,10 +56,17 @@ def command(
         value = os.environ.get(passphrase_env)
         if value is None:
             raise InputError.single(
-                "--passphrase-env", f"the environment variable {passphrase_env} is not set", key="--passphrase-env"
+                "--passphrase-env",
+                f"the environment variable {passphrase_env} is not set",
+                key="--passphrase-env",
             )
         passphrase = value.encode("utf-8")
     out = sign_report(
-        report, key=key, passphrase=passphrase, output=output, reason=reason or DEFAULT_REASON, location=location
+        report,
+        key=key,
+        passphrase=passphrase,
+        output=output,
+        reason=reason or DEFAULT_REASON,
+        location=location,
     )
     click.echo(f"signed {report} -> {out}")

@@ -320,7 +320,7 @@ def dumps_results(results: dict[str, Any]) -> str:
     # always escaped, so '}, {"id": ' occurs only between two records.
     body = json.dumps(items, allow_nan=False)[1:-1]
     body = body.replace('}, {"id": ', f'}},\n{pad}  {{"id": ')
-    return f'{head[:at]}"items": [\n{pad}  {body}\n{pad}]{head[at + len(slot):]}'
+    return f'{head[:at]}"items": [\n{pad}  {body}\n{pad}]{head[at + len(slot) :]}'
 
 
 def _show_progress(quiet: bool) -> bool:

@@ -143,7 +143,9 @@ def _register_fonts() -> None:
     # charts would then depend on the machine and miss glyphs the shipped font has.
     fm = font_manager.fontManager
     families = {e.name for e in fm.ttflist if os.path.realpath(e.fname) in shipped}
-    fm.ttflist = [e for e in fm.ttflist if e.name not in families or os.path.realpath(e.fname) in shipped]
+    fm.ttflist = [
+        e for e in fm.ttflist if e.name not in families or os.path.realpath(e.fname) in shipped
+    ]
     font_manager.FontManager._findfont_cached.cache_clear()  # type: ignore[attr-defined]
     font_manager._get_font.cache_clear()  # type: ignore[attr-defined]
     _FONTS_DONE = True

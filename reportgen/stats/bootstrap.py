@@ -307,8 +307,15 @@ def _interval(
     def empty(why: str) -> BootstrapResult:
         return BootstrapResult(
             estimate=theta_hat if np.isfinite(theta_hat) else None,
-            ci_low=None, ci_high=None, se=None, method=label, resamples=resamples, seed=seed,
-            valid=valid, warnings=(*notes, why), confidence_level=level,
+            ci_low=None,
+            ci_high=None,
+            se=None,
+            method=label,
+            resamples=resamples,
+            seed=seed,
+            valid=valid,
+            warnings=(*notes, why),
+            confidence_level=level,
         )
 
     if not np.isfinite(theta_hat):
@@ -349,7 +356,9 @@ def _interval(
             zq = [nd.inv_cdf(float(p)) for p in probs]
             shrink = [1.0 - a * (z0 + z) for z in zq]
             if all(x > 0 for x in shrink):
-                probs = np.array([nd.cdf(z0 + (z0 + z) / sh) for z, sh in zip(zq, shrink, strict=True)])
+                probs = np.array(
+                    [nd.cdf(z0 + (z0 + z) / sh) for z, sh in zip(zq, shrink, strict=True)]
+                )
                 if not jv.all():
                     notes.append(
                         "Some leave-one-item-out values were undefined; the acceleration uses "
@@ -365,8 +374,15 @@ def _interval(
     part = np.partition(r, kth)
     lo, hi = _sorted_quantile(part, float(probs[0])), _sorted_quantile(part, float(probs[1]))
     return BootstrapResult(
-        estimate=theta_hat, ci_low=float(lo), ci_high=float(hi), se=se, method=label,
-        resamples=resamples, seed=seed, valid=valid, warnings=tuple(notes),
+        estimate=theta_hat,
+        ci_low=float(lo),
+        ci_high=float(hi),
+        se=se,
+        method=label,
+        resamples=resamples,
+        seed=seed,
+        valid=valid,
+        warnings=tuple(notes),
         confidence_level=level,
     )
 
@@ -410,8 +426,14 @@ def bootstrap(
     Validated against: scipy.stats.bootstrap on per-item resampling (tests/stats/test_bootstrap.py).
     """
     return bootstrap_many(
-        {"_": features}, {"_": from_sums}, resamples=resamples, seed=seed, rng=rng,
-        confidence_level=confidence_level, method=method, multiplicity=multiplicity,
+        {"_": features},
+        {"_": from_sums},
+        resamples=resamples,
+        seed=seed,
+        rng=rng,
+        confidence_level=confidence_level,
+        method=method,
+        multiplicity=multiplicity,
     )["_"]
 
 
@@ -473,8 +495,13 @@ def bootstrap_many(
         for name in names:
             stats[name] = (str(id(features[name])), from_sums[name])
     return bootstrap_groups(
-        groups, stats, resamples=resamples, seed=seed, rng=rng,
-        confidence_level=confidence_level, method=method,
+        groups,
+        stats,
+        resamples=resamples,
+        seed=seed,
+        rng=rng,
+        confidence_level=confidence_level,
+        method=method,
     )
 
 
@@ -635,7 +662,13 @@ def bootstrap_groups(
             )
         theta_hat, values, jack = cache[key]
         out[name] = _interval(
-            theta_hat, values, jack, mults[g].astype(np.float64),
-            resamples=b, seed=seed if rng is None else None, method=method_, level=level,
+            theta_hat,
+            values,
+            jack,
+            mults[g].astype(np.float64),
+            resamples=b,
+            seed=seed if rng is None else None,
+            method=method_,
+            level=level,
         )
     return out

@@ -330,18 +330,30 @@ def _cohen_estimates(tables: np.ndarray, w: np.ndarray, level: float) -> list[Es
     zq = normal_quantile(level)
     fragile_list = fragile.tolist()
     out = []
-    for i, (kappa, n_f, exp_f, po, pe, v, v0, dmin) in enumerate(zip(
-        kappa_arr.tolist(), n_list, exp_list, p_o.tolist(), p_e.tolist(), var.tolist(),
-        var0.tolist(), diag_min.tolist(), strict=True,
-    )):
+    for i, (kappa, n_f, exp_f, po, pe, v, v0, dmin) in enumerate(
+        zip(
+            kappa_arr.tolist(),
+            n_list,
+            exp_list,
+            p_o.tolist(),
+            p_e.tolist(),
+            var.tolist(),
+            var0.tolist(),
+            diag_min.tolist(),
+            strict=True,
+        )
+    ):
         if int(n_f) == 0 or not exp_f > 0.0 or fragile_list[i]:
             out.append(_cohen_estimate(tables[i], w, level, weighted=weighted))
             continue
         se = math.sqrt(max(v, 0.0))
         se0 = math.sqrt(max(v0, 0.0))
         kmax = None if weighted else 1.0 - n_f * (n_f - dmin) / exp_f
-        out.append(_cohen_record(kappa, se, se0, po, pe, kmax, int(n_f), int(agreeing[i]),
-                                 label, weighted, level, zq))
+        out.append(
+            _cohen_record(
+                kappa, se, se0, po, pe, kmax, int(n_f), int(agreeing[i]), label, weighted, level, zq
+            )
+        )
     return out
 
 
@@ -393,8 +405,14 @@ def _cohen_record(
         items=n,
         agreeing=agreeing,
         warnings=tuple(warnings),
-        extra={"weighted": weighted, "p_o": p_o, "p_e": p_e, "se_null": se0, "z": z,
-               "kappa_max": kmax},
+        extra={
+            "weighted": weighted,
+            "p_o": p_o,
+            "p_e": p_e,
+            "se_null": se0,
+            "z": z,
+            "kappa_max": kmax,
+        },
     )
 
 

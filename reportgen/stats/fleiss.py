@@ -204,8 +204,10 @@ def fnl_null_variance(
     if n_pairable <= 0 or n_rated <= 0:
         return out
     deg = 2.0 * v2 * (sum_inv_pairs / n_pairable**2)
-    lin = 4.0 * zeta1 * (
-        (1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2
+    lin = (
+        4.0
+        * zeta1
+        * ((1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2)
     )
     return np.divide(deg + lin, pq**2, out=out, where=pq > 0)
 
@@ -279,7 +281,9 @@ def fleiss_kappa(
     if n_pairable == 0:
         why = "Fleiss' kappa is undefined: no item has two or more ratings."
     elif 1.0 - pe <= _TINY:
-        why = "Fleiss' kappa is undefined: every rating is in one category, so chance agreement is 1."
+        why = (
+            "Fleiss' kappa is undefined: every rating is in one category, so chance agreement is 1."
+        )
 
     extra_common = {
         "items_pairable": n_pairable,
@@ -300,8 +304,19 @@ def fleiss_kappa(
         )
         return FleissResult(
             overall=overall,
-            by_category=_categories(kappa_j, pi, None, None, n_pairable, n_rated, zc, level,
-                                    level_notes, extra_common, names),
+            by_category=_categories(
+                kappa_j,
+                pi,
+                None,
+                None,
+                n_pairable,
+                n_rated,
+                zc,
+                level,
+                level_notes,
+                extra_common,
+                names,
+            ),
         )
 
     if inv_pairs is not None:
@@ -313,8 +328,13 @@ def fleiss_kappa(
         sum_inv_r_pairable = float(w @ np.where(pair_ok, 1.0 / np.maximum(m, 1), 0.0))
         keep = m >= 1  # items without ratings take no part in the variance
         feats, w = feats[keep], w[keep]
-    null_args = (float(n_pairable), float(n_rated), sum_inv_pairs, sum_inv_r_pairable,
-                 float(n_single))
+    null_args = (
+        float(n_pairable),
+        float(n_rated),
+        sum_inv_pairs,
+        sum_inv_r_pairable,
+        float(n_single),
+    )
     # Gwet's linearised variances over the rated items (patterns weighted), written exactly as
     # the published per-item formulas so that degenerate data (e.g. perfect agreement) give an
     # exact zero variance rather than rounding noise.
@@ -325,9 +345,9 @@ def fleiss_kappa(
     pe_i = pi_i @ pi_arr
     # with every item pairable e_i is 1.0 everywhere, and x * 1.0 == x exactly
     pe_e = pe if everyone_pairable else pe * e_i
-    kstar = ratio * (feats[:, 1] - pe_e) / (1.0 - pe) - 2.0 * (1.0 - kappa) * (
-        pe_i - pe
-    ) / (1.0 - pe)
+    kstar = ratio * (feats[:, 1] - pe_e) / (1.0 - pe) - 2.0 * (1.0 - kappa) * (pe_i - pe) / (
+        1.0 - pe
+    )
     # Per category, all at once: Fleiss' kappa of each collapsed "j versus not j" table, whose
     # item agreement is 1 - 2 d_ij and chance agreement p_j^2 + q_j^2.
     qi = 1.0 - pi_arr
@@ -345,9 +365,7 @@ def fleiss_kappa(
             a_ij = e_i[:, None] - 2.0 * d_i
             pe_je = pe_j * e_i[:, None]
         pe_ij = qi + pi_i * (pi_arr - qi)
-        kstar_j = ratio * (a_ij - pe_je) * inv - (
-            2.0 * (1.0 - kj_arr) * (pe_ij - pe_j) * inv
-        )
+        kstar_j = ratio * (a_ij - pe_je) * inv - (2.0 * (1.0 - kj_arr) * (pe_ij - pe_j) * inv)
         if n_rated >= 2:
             var_j = ((w @ (kstar_j - kj_arr) ** 2) / (n_rated * (n_rated - 1.0))).tolist()
         else:
@@ -356,14 +374,22 @@ def fleiss_kappa(
 
     var0 = _fnl_null_variance_one(pi, *null_args)
     overall = _estimate(
-        kappa, var_all[0], var0, zc, level, n_rated, all_alike, level_notes,
+        kappa,
+        var_all[0],
+        var0,
+        zc,
+        level,
+        n_rated,
+        all_alike,
+        level_notes,
         {**extra_common, "p_o": float(pa), "p_e": pe, "proportions": pi},
         "Fleiss' kappa",
     )
     var_j = [v if ok else math.nan for v, ok in zip(var_all[1:], defined, strict=True)]
     var0_j = [_fnl_null_variance_one([p, 1.0 - p], *null_args) for p in pi]
-    by_cat = _categories(kappa_j, pi, var_j, var0_j, n_pairable, n_rated, zc, level,
-                         level_notes, extra_common, names)
+    by_cat = _categories(
+        kappa_j, pi, var_j, var0_j, n_pairable, n_rated, zc, level, level_notes, extra_common, names
+    )
     return FleissResult(overall=overall, by_category=by_cat)
 
 
@@ -382,8 +408,10 @@ def _fnl_null_variance_one(
     if n_pairable <= 0 or n_rated <= 0 or not pq > 0:
         return math.nan
     deg = 2.0 * v2 * (sum_inv_pairs / n_pairable**2)
-    lin = 4.0 * zeta1 * (
-        (1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2
+    lin = (
+        4.0
+        * zeta1
+        * ((1.0 / n_rated - 1.0 / n_pairable) ** 2 * sum_inv_r_pairable + n_single / n_rated**2)
     )
     return (deg + lin) / pq**2
 
@@ -411,18 +439,37 @@ def _categories(
             if n_pairable == 0:
                 why = f"Fleiss' kappa for category {cat} is undefined: no item has two or more ratings."
             elif pj <= 0.0:
-                why = f"Fleiss' kappa for category {cat} is undefined: no rating is in this category."
+                why = (
+                    f"Fleiss' kappa for category {cat} is undefined: no rating is in this category."
+                )
             elif pj >= 1.0:
                 why = f"Fleiss' kappa for category {cat} is undefined: every rating is in this category."
             else:
                 why = f"Fleiss' kappa for category {cat} is undefined."
-            out.append(Estimate(
-                estimate=None, items=n_rated, confidence_level=level,
-                warnings=(*notes, why), extra=extra,
-            ))
+            out.append(
+                Estimate(
+                    estimate=None,
+                    items=n_rated,
+                    confidence_level=level,
+                    warnings=(*notes, why),
+                    extra=extra,
+                )
+            )
             continue
-        out.append(_estimate(value, float(var_j[j]), float(var0_j[j]), zc, level, n_rated, None,
-                             notes, extra, f"Fleiss' kappa for category {cat}"))
+        out.append(
+            _estimate(
+                value,
+                float(var_j[j]),
+                float(var0_j[j]),
+                zc,
+                level,
+                n_rated,
+                None,
+                notes,
+                extra,
+                f"Fleiss' kappa for category {cat}",
+            )
+        )
     return tuple(out)
 
 

@@ -261,8 +261,11 @@ def _finish(
 ) -> Estimate:
     if why is not None or cstar is None:
         return Estimate(
-            estimate=None, items=n_rated, confidence_level=level,
-            warnings=(*notes, why or f"{name} is undefined."), extra=extra,
+            estimate=None,
+            items=n_rated,
+            confidence_level=level,
+            warnings=(*notes, why or f"{name} is undefined."),
+            extra=extra,
         )
     var = _weighted_var_of_mean(cstar, mult, value, n_rated)
     warnings = list(notes)
@@ -317,7 +320,9 @@ def gwet_ac(
     pe = tw / (k * (k - 1)) * sum(p * (1 - p) for p in pi) if k > 1 else float("nan")
     pa = s_list[1] / n2 if n2 else float("nan")
     extra: dict[str, object] = {
-        **info, "p_o": _finite_or_none(pa), "p_e": _finite_or_none(pe),
+        **info,
+        "p_o": _finite_or_none(pa),
+        "p_e": _finite_or_none(pe),
         "finite_population_correction": False,
     }
     why = None
@@ -364,7 +369,9 @@ def brennan_prediger(
     n2, n_rated = s_list[0], int(s_list[2])
     pe = _weights_total(weights, w) / k**2
     extra: dict[str, object] = {
-        **info, "p_o": _finite_or_none(s_list[1] / n2) if n2 else None, "p_e": pe,
+        **info,
+        "p_o": _finite_or_none(s_list[1] / n2) if n2 else None,
+        "p_e": pe,
         "finite_population_correction": False,
     }
     why = None

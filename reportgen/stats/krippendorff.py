@@ -83,11 +83,7 @@ def _delta2(n_c: np.ndarray, level: str, values: np.ndarray | None) -> np.ndarra
         d = (v[:, None] - v[None, :]) ** 2
         return np.broadcast_to(d, (*n_c.shape[:-1], k, k))
     cum = np.cumsum(n_c, axis=-1)
-    d = (
-        cum[..., None, :]
-        - cum[..., :, None]
-        + (n_c[..., :, None] - n_c[..., None, :]) / 2.0
-    )
+    d = cum[..., None, :] - cum[..., :, None] + (n_c[..., :, None] - n_c[..., None, :]) / 2.0
     return d * d
 
 
@@ -247,8 +243,11 @@ def krippendorff_alpha(
                 "(or has one value), so there is no expected disagreement."
             )
         return Estimate(
-            estimate=None, items=units, confidence_level=level_,
-            warnings=(*notes, why), extra=extra,
+            estimate=None,
+            items=units,
+            confidence_level=level_,
+            warnings=(*notes, why),
+            extra=extra,
         )
     extra["d_observed"] = _finite_or_none(float(d_obs) / n_values)
     extra["d_expected"] = _finite_or_none(float(d_exp) / (n_values * (n_values - 1.0)))

@@ -22,8 +22,12 @@ __all__ = ["CountPatterns", "as_patterns", "compress", "count_patterns", "count_
 
 _SMALL_TABLE = 512  # tables with at most this many items are not compressed
 _DENSE_KEYS_LIMIT = 1 << 24  # largest key space handled by a direct bincount
-_UNSIGNED = {1: np.dtype(np.uint8), 2: np.dtype(np.uint16), 4: np.dtype(np.uint32),
-             8: np.dtype(np.uint64)}
+_UNSIGNED = {
+    1: np.dtype(np.uint8),
+    2: np.dtype(np.uint16),
+    4: np.dtype(np.uint32),
+    8: np.dtype(np.uint64),
+}
 
 
 def count_table(codes: np.ndarray, n_categories: int) -> np.ndarray:
@@ -304,8 +308,9 @@ def as_patterns(counts: np.ndarray | CountPatterns) -> CountPatterns:
     c = c.astype(np.int64, copy=False)
     if c.shape[0] <= _SMALL_TABLE:  # compressing a small table costs more than it saves
         n = c.shape[0]
-        return CountPatterns(rows=c, multiplicity=np.ones(n, dtype=np.int64),
-                             inverse=np.arange(n, dtype=np.intp))
+        return CountPatterns(
+            rows=c, multiplicity=np.ones(n, dtype=np.int64), inverse=np.arange(n, dtype=np.intp)
+        )
     return compress(c)
 
 

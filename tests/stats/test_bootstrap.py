@@ -19,7 +19,9 @@ from reportgen.stats.tables import compress, count_table
 def _study(seed: int, n: int = 60, raters: int = 4, k: int = 3, agree: float = 0.6):
     rng = np.random.default_rng(seed)
     truth = rng.integers(0, k, n)
-    codes = np.where(rng.random((n, raters)) < agree, truth[:, None], rng.integers(0, k, (n, raters)))
+    codes = np.where(
+        rng.random((n, raters)) < agree, truth[:, None], rng.integers(0, k, (n, raters))
+    )
     codes[rng.random((n, raters)) < 0.1] = -1
     return count_table(codes, k)
 
@@ -82,7 +84,11 @@ def test_same_law_with_patterns_and_multiplicities() -> None:
     f_pat = fleiss_kappa_features(pat.rows)
     a = bootstrap(f_items, fleiss_kappa_from_sums, resamples=4000, seed=1, method="percentile")
     b = bootstrap(
-        f_pat, fleiss_kappa_from_sums, resamples=4000, seed=2, method="percentile",
+        f_pat,
+        fleiss_kappa_from_sums,
+        resamples=4000,
+        seed=2,
+        method="percentile",
         multiplicity=pat.multiplicity,
     )
     assert a.estimate == pytest.approx(b.estimate, abs=1e-14)
@@ -100,7 +106,11 @@ def test_matches_scipy_bootstrap_on_item_resampling() -> None:
 
     ours = bootstrap(fleiss_kappa_features(c), fleiss_kappa_from_sums, resamples=6000, seed=11)
     ref = stats.bootstrap(
-        (idx,), kappa_of, vectorized=False, n_resamples=6000, method="BCa",
+        (idx,),
+        kappa_of,
+        vectorized=False,
+        n_resamples=6000,
+        method="BCa",
         random_state=np.random.default_rng(12),
     )
     se = ref.standard_error
@@ -108,11 +118,18 @@ def test_matches_scipy_bootstrap_on_item_resampling() -> None:
     assert ours.ci_low == pytest.approx(ref.confidence_interval.low, abs=0.2 * se)
     assert ours.ci_high == pytest.approx(ref.confidence_interval.high, abs=0.2 * se)
     pct = bootstrap(
-        fleiss_kappa_features(c), fleiss_kappa_from_sums, resamples=6000, seed=11,
+        fleiss_kappa_features(c),
+        fleiss_kappa_from_sums,
+        resamples=6000,
+        seed=11,
         method="percentile",
     )
     ref_p = stats.bootstrap(
-        (idx,), kappa_of, vectorized=False, n_resamples=6000, method="percentile",
+        (idx,),
+        kappa_of,
+        vectorized=False,
+        n_resamples=6000,
+        method="percentile",
         random_state=np.random.default_rng(13),
     )
     assert pct.ci_low == pytest.approx(ref_p.confidence_interval.low, abs=0.2 * se)
@@ -123,12 +140,18 @@ def test_bootstrap_se_close_to_analytic_se_on_a_large_sample() -> None:
     c = _study(6, n=3000, raters=5, k=4)
     pat = compress(c)
     r = bootstrap(
-        gwet_ac_features(pat.rows), gwet_ac_from_sums, resamples=3000, seed=3,
+        gwet_ac_features(pat.rows),
+        gwet_ac_from_sums,
+        resamples=3000,
+        seed=3,
         multiplicity=pat.multiplicity,
     )
     assert r.se == pytest.approx(gwet_ac(c).se, rel=0.07)
     rf = bootstrap(
-        fleiss_kappa_features(pat.rows), fleiss_kappa_from_sums, resamples=3000, seed=3,
+        fleiss_kappa_features(pat.rows),
+        fleiss_kappa_from_sums,
+        resamples=3000,
+        seed=3,
         multiplicity=pat.multiplicity,
     )
     assert rf.se == pytest.approx(fleiss_kappa(c).overall.se, rel=0.07)
@@ -201,14 +224,16 @@ def test_bootstrap_many_shares_the_item_draws() -> None:
     out = bootstrap_many(
         {"a": f, "b": f, "ac1": g},
         {"a": fleiss_kappa_from_sums, "b": fleiss_kappa_from_sums, "ac1": gwet_ac_from_sums},
-        resamples=300, seed=5,
+        resamples=300,
+        seed=5,
     )
     assert out["a"] == out["b"]
     assert out["ac1"].estimate == pytest.approx(gwet_ac(c).estimate, abs=1e-14)
     again = bootstrap_many(
         {"a": f, "b": f, "ac1": g},
         {"a": fleiss_kappa_from_sums, "b": fleiss_kappa_from_sums, "ac1": gwet_ac_from_sums},
-        resamples=300, seed=5,
+        resamples=300,
+        seed=5,
     )
     assert again == out
 
@@ -343,8 +368,10 @@ def test_lone_group_is_the_plain_bootstrap() -> None:
     f = fleiss_kappa_features(c)
     plain = bootstrap(f, fleiss_kappa_from_sums, resamples=500, seed=4)
     grouped = bootstrap_groups(
-        {"g": FeatureGroup.of_items(f)}, {"k": ("g", fleiss_kappa_from_sums)},
-        resamples=500, seed=4,
+        {"g": FeatureGroup.of_items(f)},
+        {"k": ("g", fleiss_kappa_from_sums)},
+        resamples=500,
+        seed=4,
     )["k"]
     assert grouped == plain
 
@@ -366,9 +393,13 @@ def test_groups_share_the_same_item_draws() -> None:
     ident = FeatureGroup(np.eye(700)[:, :3] + 0.0, np.ones(700, dtype=np.int64), np.arange(700))
     out = bootstrap_groups(
         {"pat": per_pattern, "items": per_item, "ident": ident},
-        {"a": ("pat", fleiss_kappa_from_sums), "b": ("items", fleiss_kappa_from_sums),
-         "c": ("ident", lambda s: s[..., 0])},
-        resamples=400, seed=3,
+        {
+            "a": ("pat", fleiss_kappa_from_sums),
+            "b": ("items", fleiss_kappa_from_sums),
+            "c": ("ident", lambda s: s[..., 0]),
+        },
+        resamples=400,
+        seed=3,
     )
     a, b = out["a"], out["b"]
     assert a.estimate == pytest.approx(b.estimate, abs=1e-13)
@@ -389,12 +420,15 @@ def test_groups_input_validation() -> None:
     with pytest.raises(ValueError, match="unknown feature group"):
         bootstrap_groups({"a": g1}, {"x": ("b", lambda s: s[..., 0])})
     with pytest.raises(ValueError, match="same items"):
-        bootstrap_groups({"a": g1, "b": g2},
-                         {"x": ("a", lambda s: s[..., 0]), "y": ("b", lambda s: s[..., 0])})
+        bootstrap_groups(
+            {"a": g1, "b": g2}, {"x": ("a", lambda s: s[..., 0]), "y": ("b", lambda s: s[..., 0])}
+        )
     no_map = FeatureGroup(f, np.ones(4, dtype=np.int64))
     with pytest.raises(ValueError, match="inverse"):
-        bootstrap_groups({"a": g1, "b": no_map},
-                         {"x": ("a", lambda s: s[..., 0]), "y": ("b", lambda s: s[..., 0])})
+        bootstrap_groups(
+            {"a": g1, "b": no_map},
+            {"x": ("a", lambda s: s[..., 0]), "y": ("b", lambda s: s[..., 0])},
+        )
 
 
 def test_bootstrap_many_compresses_a_shared_matrix_once() -> None:
@@ -417,9 +451,14 @@ def test_bootstrap_many_compresses_a_shared_matrix_once() -> None:
         noisy = np.random.default_rng(0).random((2000, 2))
         out = bootstrap_many(
             {"a": f, "b": f, "c": f, "n": noisy},
-            {"a": fleiss_kappa_from_sums, "b": fleiss_kappa_from_sums,
-             "c": fleiss_kappa_from_sums, "n": lambda s: s[..., 0] / s[..., 1]},
-            resamples=200, seed=1,
+            {
+                "a": fleiss_kappa_from_sums,
+                "b": fleiss_kappa_from_sums,
+                "c": fleiss_kappa_from_sums,
+                "n": lambda s: s[..., 0] / s[..., 1],
+            },
+            resamples=200,
+            seed=1,
         )
     finally:
         bmod.FeatureGroup.of_items = real  # type: ignore[method-assign]

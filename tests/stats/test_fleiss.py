@@ -24,20 +24,52 @@ from reportgen.stats.tables import count_table
 # F2 — Fleiss (1971) psychiatric diagnoses, 30 patients × 6 ratings, 5 categories.
 F2 = np.array(
     [
-        [0, 0, 0, 6, 0], [0, 3, 0, 0, 3], [0, 1, 4, 0, 1], [0, 0, 0, 0, 6], [0, 3, 0, 3, 0],
-        [2, 0, 4, 0, 0], [0, 0, 4, 0, 2], [2, 0, 3, 1, 0], [2, 0, 0, 4, 0], [0, 0, 0, 0, 6],
-        [1, 0, 0, 5, 0], [1, 1, 0, 4, 0], [0, 3, 3, 0, 0], [1, 0, 0, 5, 0], [0, 2, 0, 3, 1],
-        [0, 0, 5, 0, 1], [3, 0, 0, 1, 2], [5, 1, 0, 0, 0], [0, 2, 0, 4, 0], [1, 0, 2, 0, 3],
-        [0, 0, 0, 0, 6], [0, 1, 0, 5, 0], [0, 2, 0, 1, 3], [2, 0, 0, 4, 0], [1, 0, 0, 4, 1],
-        [0, 5, 0, 1, 0], [4, 0, 0, 0, 2], [0, 2, 0, 4, 0], [1, 0, 5, 0, 0], [0, 0, 0, 0, 6],
+        [0, 0, 0, 6, 0],
+        [0, 3, 0, 0, 3],
+        [0, 1, 4, 0, 1],
+        [0, 0, 0, 0, 6],
+        [0, 3, 0, 3, 0],
+        [2, 0, 4, 0, 0],
+        [0, 0, 4, 0, 2],
+        [2, 0, 3, 1, 0],
+        [2, 0, 0, 4, 0],
+        [0, 0, 0, 0, 6],
+        [1, 0, 0, 5, 0],
+        [1, 1, 0, 4, 0],
+        [0, 3, 3, 0, 0],
+        [1, 0, 0, 5, 0],
+        [0, 2, 0, 3, 1],
+        [0, 0, 5, 0, 1],
+        [3, 0, 0, 1, 2],
+        [5, 1, 0, 0, 0],
+        [0, 2, 0, 4, 0],
+        [1, 0, 2, 0, 3],
+        [0, 0, 0, 0, 6],
+        [0, 1, 0, 5, 0],
+        [0, 2, 0, 1, 3],
+        [2, 0, 0, 4, 0],
+        [1, 0, 0, 4, 1],
+        [0, 5, 0, 1, 0],
+        [4, 0, 0, 0, 2],
+        [0, 2, 0, 4, 0],
+        [1, 0, 5, 0, 0],
+        [0, 0, 0, 0, 6],
     ]
 )
 
 # F1 — Wikipedia "Fleiss' kappa" worked example, 10 items × 14 raters, 5 categories.
 F1 = np.array(
     [
-        [0, 0, 0, 0, 14], [0, 2, 6, 4, 2], [0, 0, 3, 5, 6], [0, 3, 9, 2, 0], [2, 2, 8, 1, 1],
-        [7, 7, 0, 0, 0], [3, 2, 6, 3, 0], [2, 5, 3, 2, 2], [6, 5, 2, 1, 0], [0, 2, 2, 3, 7],
+        [0, 0, 0, 0, 14],
+        [0, 2, 6, 4, 2],
+        [0, 0, 3, 5, 6],
+        [0, 3, 9, 2, 0],
+        [2, 2, 8, 1, 1],
+        [7, 7, 0, 0, 0],
+        [3, 2, 6, 3, 0],
+        [2, 5, 3, 2, 2],
+        [6, 5, 2, 1, 0],
+        [0, 2, 2, 3, 7],
     ]
 )
 
@@ -209,7 +241,9 @@ def test_null_se_with_varying_ratings_matches_simulation() -> None:
     counts = np.stack([(draws == j).sum(-1) for j in range(k)], axis=-1)  # (sims, n, k)
     feats = np.stack([fleiss_kappa_features(counts[s]) for s in range(sims)])
     kappas = fleiss_kappa_from_sums(feats.sum(1))
-    se_pred = np.mean([fleiss_kappa(counts[s]).overall.extra["se_null"] for s in range(0, sims, 40)])
+    se_pred = np.mean(
+        [fleiss_kappa(counts[s]).overall.extra["se_null"] for s in range(0, sims, 40)]
+    )
     sd_sim = np.nanstd(kappas, ddof=1)
     # Monte Carlo error of an SD from 4000 draws is about 1.1 %; allow 6 %.
     assert se_pred == pytest.approx(sd_sim, rel=0.06)

@@ -127,9 +127,7 @@ def test_features_are_item_additive_and_batched() -> None:
         assert single == pytest.approx(krippendorff_alpha(c, level=level).estimate, abs=1e-14)
         batch = krippendorff_alpha_from_sums(np.stack([f[:6].sum(0), f.sum(0)]), level=level)
         assert batch.shape == (2,) and batch[1] == pytest.approx(single, abs=1e-14)
-        assert batch[0] == pytest.approx(
-            krippendorff_alpha(c[:6], level=level).estimate, abs=1e-14
-        )
+        assert batch[0] == pytest.approx(krippendorff_alpha(c[:6], level=level).estimate, abs=1e-14)
 
 
 def test_degenerate_and_bad_input() -> None:
@@ -157,7 +155,11 @@ def test_batched_alpha_matches_one_at_a_time() -> None:
     counts = rng.integers(0, 4, size=(60, 4))
     f = krippendorff_alpha_features(counts)
     sums = rng.multinomial(60, np.full(60, 1 / 60), size=200).astype(float) @ f
-    for level, values in (("nominal", None), ("ordinal", None), ("interval", np.array([0, 1, 2.5, 7]))):
+    for level, values in (
+        ("nominal", None),
+        ("ordinal", None),
+        ("interval", np.array([0, 1, 2.5, 7])),
+    ):
         batch = krippendorff_alpha_from_sums(sums, level=level, values=values)
         one = np.array([krippendorff_alpha_from_sums(s, level=level, values=values) for s in sums])
         np.testing.assert_allclose(batch, one, rtol=0, atol=1e-12)

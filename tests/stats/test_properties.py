@@ -71,7 +71,9 @@ def test_invariant_to_item_order_and_rating_slots(study: tuple[np.ndarray, int],
 
 @SETTINGS
 @given(studies(), st.integers(0, 2**32 - 1))
-def test_nominal_coefficients_invariant_to_relabelling(study: tuple[np.ndarray, int], seed: int) -> None:
+def test_nominal_coefficients_invariant_to_relabelling(
+    study: tuple[np.ndarray, int], seed: int
+) -> None:
     codes, k = study
     perm = np.random.default_rng(seed).permutation(k)
     relabelled = np.where(codes < 0, -1, perm[np.maximum(codes, 0)]).astype(np.int8)
