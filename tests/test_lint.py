@@ -28,3 +28,23 @@ def test_ruff_check_passes() -> None:
         check=False,
     )
     assert proc.returncode == 0, proc.stdout[-4000:] + proc.stderr[-2000:]
+
+
+def test_ruff_format_is_applied() -> None:
+    proc = subprocess.run(
+        [
+            *_ruff(),
+            "format",
+            "--check",
+            "--no-cache",
+            "reportgen",
+            "tests",
+            "benchmarks",
+            "studies",
+        ],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        check=False,
+    )
+    assert proc.returncode == 0, "run `make fix`:\n" + proc.stdout[-4000:]
