@@ -99,8 +99,8 @@ def command(
     )
     from ..study import load_study
 
-    quiet = quiet or bool(os.environ.get("CI"))
-    tty = not quiet and sys.stderr.isatty()
+    # Progress lines only on a terminal, never in CI; the result lines print unless --quiet.
+    tty = not quiet and not os.environ.get("CI") and sys.stderr.isatty()
     start = time.perf_counter()
 
     def progress(msg: str) -> None:

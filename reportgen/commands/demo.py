@@ -159,12 +159,12 @@ def command(output: Path, studies: Path | None, quiet: bool) -> None:
     """Run the main job on every demo study: check, analyse, judge and build its report."""
     folder = studies if studies is not None else _default_studies()
     paths = find_demo_studies(folder)
-    quiet = quiet or bool(os.environ.get("CI"))
     if not paths:
         from ..errors import InputError
 
         raise InputError.single(folder, "no demo study found (expected */study.yaml)")
-    show_progress = not quiet and sys.stderr.isatty()
+    # Progress lines only on a terminal, never in CI; the result lines print unless --quiet.
+    show_progress = not quiet and not os.environ.get("CI") and sys.stderr.isatty()
     for n, path in enumerate(paths, 1):
         if show_progress:
             click.echo(f"[{n}/{len(paths)}] {path.parent.name} …", err=True)
