@@ -175,7 +175,7 @@ MEASURES: dict[str, MeasureInfo] = {
             "light_kappa",
             "Light's kappa",
             ("κ_L = mean of Cohen's κ over all pairs of raters",),
-            "Easy to explain: the average pairwise kappa.",
+            "Easy to explain: the average of the kappas of every pair of raters.",
             ("light1971",),
             "coefficient",
         ),

@@ -23,7 +23,7 @@ ratings.
 
 Validated against: Fleiss (1971) diagnoses data as rater-coded columns (Light 0.459 in R irr's
 documentation; Conger 0.4418085 from irrCAC); irrCAC ``conger()`` and the mean of scikit-learn
-pairwise kappas on random data (test-only cross-checks).
+pair-by-pair kappas on random data (test-only cross-checks).
 """
 
 from __future__ import annotations
@@ -309,7 +309,7 @@ def light_kappa(
     already built (the pairwise matrix needs the same ones).
 
     Validated against: R irr documentation value 0.459 on the Fleiss (1971) diagnoses data;
-    mean of scikit-learn pairwise kappas on random data (test-only).
+    mean of scikit-learn pair-by-pair kappas on random data (test-only).
     """
     k = _categories_iv(k)
     level = _confidence_level_iv(confidence_level)
