@@ -178,7 +178,8 @@ def command(output: Path, studies: Path | None, quiet: bool) -> None:
             )
             click.echo(
                 f"{info['study']}: {info['items']} items, {info['raters']} raters, "
-                f"{info['trials']} trial(s) -> {_verdict_text(info['verdict'])}{draft}"
+                f"{info['trials']} trial{'' if info['trials'] == 1 else 's'} -> "
+                f"{_verdict_text(info['verdict'])}{draft}"
             )
             for written in info["written"]:
                 click.echo(f"  wrote {written}")
