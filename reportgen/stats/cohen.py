@@ -469,45 +469,9 @@ def _cohen_estimate(
     var0 = (float((np.outer(rows, cols) * (w - marg) ** 2).sum()) - p_e * p_e) / scale
     se = math.sqrt(max(var, 0.0))
     se0 = math.sqrt(max(var0, 0.0))
-
-    warnings: list[str] = []
-    z: float | None = None
-    p_value: float | None = None
-    if se0 > 0.0:
-        z = kappa / se0
-        p_value = math.erfc(abs(z) / math.sqrt(2.0))
-    else:
-        warnings.append(f"No test of {label} = 0: its null standard error is zero for these data.")
-
-    ci_low: float | None = None
-    ci_high: float | None = None
-    if se > 0.0:
-        half = normal_quantile(level) * se
-        ci_low, ci_high = kappa - half, kappa + half
-        if ci_low < -1.0 or ci_high > 1.0:
-            warnings.append(f"The analytic interval of {label} was cut to the range -1 to 1.")
-            ci_low, ci_high = max(ci_low, -1.0), min(ci_high, 1.0)
-    else:
-        warnings.append(
-            f"No analytic interval for {label}: its standard error is zero for these data "
-            "(for example perfect agreement); the large-sample interval does not apply."
-        )
-
     kmax = None if weighted else _kappa_max_counts(n_f, rows_n, cols_n, float(expected))
-    extra.update(se_null=se0, z=z, kappa_max=kmax)
-    return Estimate(
-        estimate=kappa,
-        se=se,
-        ci_low=ci_low,
-        ci_high=ci_high,
-        ci_method=_CI_METHOD,
-        confidence_level=level,
-        z=z,
-        p_value=p_value,
-        items=n,
-        agreeing=agreeing,
-        warnings=tuple(warnings),
-        extra=extra,
+    return _cohen_record(
+        kappa, se, se0, p_o, p_e, kmax, n, agreeing, label, weighted, level, normal_quantile(level)
     )
 
 
