@@ -125,7 +125,7 @@ def test_bad_input_as_json(study_path: Path, capsys: pytest.CaptureFixture[str])
 
 
 def test_progress_only_on_a_quiet_free_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
-    from reportgen.commands import stats
+    from reportgen.commands import show_progress  # the one progress rule every command uses
 
     class Tty:
         def isatty(self) -> bool:
@@ -133,10 +133,10 @@ def test_progress_only_on_a_quiet_free_terminal(monkeypatch: pytest.MonkeyPatch)
 
     monkeypatch.setattr(sys, "stderr", Tty())
     monkeypatch.delenv("CI", raising=False)
-    assert stats._show_progress(quiet=False) is True
-    assert stats._show_progress(quiet=True) is False
+    assert show_progress(quiet=False) is True
+    assert show_progress(quiet=True) is False
     monkeypatch.setenv("CI", "true")
-    assert stats._show_progress(quiet=False) is False
+    assert show_progress(quiet=False) is False
 
 
 def test_command_module_imports_no_heavy_libraries() -> None:

@@ -3,17 +3,11 @@
 from __future__ import annotations
 
 import json
-import os
-import sys
 from pathlib import Path
 
 import click
 
-
-def _progress(quiet: bool):  # type: ignore[no-untyped-def]
-    if quiet or os.environ.get("CI") or not sys.stderr.isatty():
-        return None
-    return lambda msg: click.echo(f"  {msg}", err=True)
+from . import progress_printer
 
 
 @click.command("archive")
@@ -36,7 +30,7 @@ def command(revision_dir: Path, archive_dir: Path | None, as_json: bool, quiet: 
     from ..archive import archive_revision, resolve_archive_dir
 
     root = resolve_archive_dir(archive_dir, revision_dir=revision_dir)
-    entry = archive_revision(revision_dir, archive_dir=root, progress=_progress(quiet))
+    entry = archive_revision(revision_dir, archive_dir=root, progress=progress_printer(quiet))
     if as_json:
         click.echo(json.dumps(entry.__dict__, indent=2, sort_keys=True))
     elif not quiet:

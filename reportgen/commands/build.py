@@ -6,14 +6,13 @@ inside the command, so ``reportgen --help`` and ``reportgen check`` stay fast.
 
 from __future__ import annotations
 
-import os
-import sys
 import time
 from pathlib import Path
 
 import click
 
 from ..errors import ExitCode, ReportgenError
+from . import progress_printer
 
 
 class StrictWarnings(ReportgenError):
@@ -99,13 +98,8 @@ def command(
     )
     from ..study import load_study
 
-    # Progress lines only on a terminal, never in CI; the result lines print unless --quiet.
-    tty = not quiet and not os.environ.get("CI") and sys.stderr.isatty()
     start = time.perf_counter()
-
-    def progress(msg: str) -> None:
-        if tty:
-            click.echo(f"  {msg} …", err=True)
+    progress = progress_printer(quiet) or (lambda msg: None)
 
     when = resolve_generated_at(generated_at)
     study = load_study(study_file)

@@ -12,11 +12,12 @@ Only click is imported at module level.
 from __future__ import annotations
 
 import os
-import sys
 from pathlib import Path
 from typing import Any
 
 import click
+
+from . import show_progress
 
 
 def _default_studies() -> Path:
@@ -163,10 +164,9 @@ def command(output: Path, studies: Path | None, quiet: bool) -> None:
         from ..errors import InputError
 
         raise InputError.single(folder, "no demo study found (expected */study.yaml)")
-    # Progress lines only on a terminal, never in CI; the result lines print unless --quiet.
-    show_progress = not quiet and not os.environ.get("CI") and sys.stderr.isatty()
+    progress_lines = show_progress(quiet)
     for n, path in enumerate(paths, 1):
-        if show_progress:
+        if progress_lines:
             click.echo(f"[{n}/{len(paths)}] {path.parent.name} …", err=True)
         info = run_demo_study(path, output=output, quiet=quiet)
         if not quiet:

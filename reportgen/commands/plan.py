@@ -13,23 +13,11 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-import os
-import sys
-from collections.abc import Callable
 from pathlib import Path
 
 import click
 
-
-def _progress(quiet: bool) -> Callable[[str], None] | None:
-    """Progress lines on stderr, only on a terminal and never with --quiet or CI set."""
-    if quiet or os.environ.get("CI") or not sys.stderr.isatty():
-        return None
-
-    def show(text: str) -> None:
-        click.echo(f"  {text}", err=True)
-
-    return show
+from . import progress_printer
 
 
 @click.command("plan")
@@ -111,7 +99,7 @@ def command(
     from ..study import load_study
 
     study = load_study(study_file, require_inputs=False)  # planned before the first rating
-    progress = _progress(quiet)
+    progress = progress_printer(quiet)
     items = load_items(items_file, study) if items_file is not None else None
     settings = plan_settings(study, seed=seed, start=start.date() if start else None)
 

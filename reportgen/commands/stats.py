@@ -7,11 +7,11 @@ level; the loaders and the statistics are imported inside the command.
 
 from __future__ import annotations
 
-import os
-import sys
 from typing import Any
 
 import click
+
+from . import progress_printer
 
 _NAMES = {
     "agreement": "Agreement rate",
@@ -323,10 +323,6 @@ def dumps_results(results: dict[str, Any]) -> str:
     return f'{head[:at]}"items": [\n{pad}  {body}\n{pad}]{head[at + len(slot) :]}'
 
 
-def _show_progress(quiet: bool) -> bool:
-    return not quiet and not os.environ.get("CI") and sys.stderr.isatty()
-
-
 @click.command("stats")
 @click.argument("study_path", metavar="STUDY.yaml", type=click.Path(dir_okay=False))
 @click.option(
@@ -348,12 +344,7 @@ def command(study_path: str, as_json: bool, quiet: bool) -> None:
     from ..study import load_study
     from ..verdict import judge
 
-    progress = None
-    if _show_progress(quiet):
-
-        def progress(msg: str) -> None:
-            click.echo(f"… {msg}", err=True)
-
+    progress = progress_printer(quiet)
     study = load_study(study_path)
     ratings = load_ratings(study)
     results = analyse(study, ratings, progress=progress)

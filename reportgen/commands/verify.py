@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import json
-import os
-import sys
 from pathlib import Path
 
 import click
+
+from . import progress_printer
 
 
 @click.command("verify")
@@ -30,8 +30,7 @@ def command(report: Path, trust: tuple[Path, ...], as_json: bool, quiet: bool) -
     from ..errors import CheckFailed
     from ..verify import verify_report
 
-    tty = sys.stderr.isatty() and not quiet and not os.environ.get("CI") and not as_json
-    progress = (lambda msg: click.echo(f"  {msg}…", err=True)) if tty else None
+    progress = progress_printer(quiet or as_json)
     result = verify_report(report, trust=trust, progress=progress)
     if as_json:
         click.echo(json.dumps(result.as_dict(), indent=2))
