@@ -20,42 +20,7 @@ from reportgen.stats.fleiss import (
     fleiss_kappa_from_sums,
 )
 from reportgen.stats.tables import count_table
-
-# F2 — Fleiss (1971) psychiatric diagnoses, 30 patients × 6 ratings, 5 categories.
-F2 = np.array(
-    [
-        [0, 0, 0, 6, 0],
-        [0, 3, 0, 0, 3],
-        [0, 1, 4, 0, 1],
-        [0, 0, 0, 0, 6],
-        [0, 3, 0, 3, 0],
-        [2, 0, 4, 0, 0],
-        [0, 0, 4, 0, 2],
-        [2, 0, 3, 1, 0],
-        [2, 0, 0, 4, 0],
-        [0, 0, 0, 0, 6],
-        [1, 0, 0, 5, 0],
-        [1, 1, 0, 4, 0],
-        [0, 3, 3, 0, 0],
-        [1, 0, 0, 5, 0],
-        [0, 2, 0, 3, 1],
-        [0, 0, 5, 0, 1],
-        [3, 0, 0, 1, 2],
-        [5, 1, 0, 0, 0],
-        [0, 2, 0, 4, 0],
-        [1, 0, 2, 0, 3],
-        [0, 0, 0, 0, 6],
-        [0, 1, 0, 5, 0],
-        [0, 2, 0, 1, 3],
-        [2, 0, 0, 4, 0],
-        [1, 0, 0, 4, 1],
-        [0, 5, 0, 1, 0],
-        [4, 0, 0, 0, 2],
-        [0, 2, 0, 4, 0],
-        [1, 0, 5, 0, 0],
-        [0, 0, 0, 0, 6],
-    ]
-)
+from stats.published import F2  # Fleiss (1971) diagnoses, 30 patients × 6 ratings
 
 # F1 — Wikipedia "Fleiss' kappa" worked example, 10 items × 14 raters, 5 categories.
 F1 = np.array(

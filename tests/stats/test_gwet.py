@@ -20,41 +20,7 @@ from reportgen.stats.gwet import (
 )
 from reportgen.stats.tables import count_table
 from reportgen.stats.weights import agreement_weights
-
-F2 = np.array(  # Fleiss (1971) diagnoses, 30 patients × 6 ratings
-    [
-        [0, 0, 0, 6, 0],
-        [0, 3, 0, 0, 3],
-        [0, 1, 4, 0, 1],
-        [0, 0, 0, 0, 6],
-        [0, 3, 0, 3, 0],
-        [2, 0, 4, 0, 0],
-        [0, 0, 4, 0, 2],
-        [2, 0, 3, 1, 0],
-        [2, 0, 0, 4, 0],
-        [0, 0, 0, 0, 6],
-        [1, 0, 0, 5, 0],
-        [1, 1, 0, 4, 0],
-        [0, 3, 3, 0, 0],
-        [1, 0, 0, 5, 0],
-        [0, 2, 0, 3, 1],
-        [0, 0, 5, 0, 1],
-        [3, 0, 0, 1, 2],
-        [5, 1, 0, 0, 0],
-        [0, 2, 0, 4, 0],
-        [1, 0, 2, 0, 3],
-        [0, 0, 0, 0, 6],
-        [0, 1, 0, 5, 0],
-        [0, 2, 0, 1, 3],
-        [2, 0, 0, 4, 0],
-        [1, 0, 0, 4, 1],
-        [0, 5, 0, 1, 0],
-        [4, 0, 0, 0, 2],
-        [0, 2, 0, 4, 0],
-        [1, 0, 5, 0, 0],
-        [0, 0, 0, 0, 6],
-    ]
-)
+from stats.published import F2  # Fleiss (1971) diagnoses, 30 patients × 6 ratings
 
 
 def _random_codes(seed: int, n: int = 50, raters: int = 4, k: int = 4, missing: float = 0.25):
