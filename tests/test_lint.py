@@ -21,7 +21,7 @@ def _ruff() -> list[str]:
 
 def test_ruff_check_passes() -> None:
     proc = subprocess.run(
-        [*_ruff(), "check", "--no-cache", "reportgen", "tests", "benchmarks", "studies"],
+        [*_ruff(), "check", "--no-cache", "reportgen", "tests", "benchmarks", "studies", "system"],
         cwd=ROOT,
         capture_output=True,
         text=True,
@@ -41,6 +41,7 @@ def test_ruff_format_is_applied() -> None:
             "tests",
             "benchmarks",
             "studies",
+            "system",
         ],
         cwd=ROOT,
         capture_output=True,

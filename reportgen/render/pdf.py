@@ -5,8 +5,11 @@
   elsewhere, ``http:``, symlinks leading out — is refused, and because the fetcher runs with
   ``fail_on_errors=True`` the render stops; :func:`render_pdf` turns that into a
   :class:`~reportgen.errors.RenderError` that names the refused URL.
-* Warnings WeasyPrint only logs (a font that cannot be loaded, a ``.notdef`` glyph) are
-  collected and also fail the render: a report never falls back silently.
+* Messages WeasyPrint only logs are sorted by :func:`classify_message` against two explicit
+  lists: those that mean the page is not what the template asked for (a glyph missing from
+  every font, a refused or failed resource, an image or stylesheet that cannot be read) fail
+  the render; notices (the fontTools subsetting fallback) are shown once per process on
+  stderr as a note and never reach the report.  Anything on neither list is a notice too.
 * Attachments get fixed creation and modification dates (the ``generated at`` time), so the
   same inputs give byte-identical PDFs.
 
@@ -18,6 +21,7 @@ from __future__ import annotations
 import datetime as dt
 import logging
 import mimetypes
+import sys
 import urllib.request
 import warnings
 from collections.abc import Sequence
@@ -144,27 +148,72 @@ def render_pdf(
         raise RenderError(f"PDF rendering failed: {type(exc).__name__}: {exc}") from exc
     finally:
         logger.removeHandler(handler)
-    serious = [m for m in handler.messages if _is_serious(m)]
+    serious = [m for m in handler.messages if classify_message(m) == "fail"]
     if serious:
         raise RenderError("PDF rendering reported problems: " + "; ".join(serious[:5]))
     if fetcher.refused:
         raise RenderError(
             "the report refers to a resource that is not allowed: " + ", ".join(fetcher.refused[:3])
         )
+    for m in handler.messages:
+        _note_once(m)
     return bytes(pdf)
 
 
-def _is_serious(message: str) -> bool:
+# WeasyPrint log messages that fail a build: the page would not show what the template asked
+# for.  Each entry is a lower-case fragment of the message as WeasyPrint 62-70 words it.
+FAILING_MESSAGES: tuple[tuple[str, str], ...] = (
+    (".notdef glyph rendered", "a character is missing from every shipped font"),
+    ("too many glyphs missing", "characters are missing from a font"),
+    ("cannot be loaded", "a font could not be loaded"),
+    ("unable to instantiate", "a variable font could not be set up"),
+    ("unable to save emoji font", "an emoji font could not be embedded"),
+    ("failed to load image", "an image could not be read"),
+    ("failed to render svg image", "a chart could not be drawn"),
+    ("failed to load inline svg", "a chart could not be drawn"),
+    ("unknown image mode", "an image could not be read"),
+    ("failed to load stylesheet", "a stylesheet could not be read"),
+    ("unsupported stylesheet type", "a stylesheet could not be read"),
+    ("refused resource", "a resource was refused"),
+    ("blocked", "a resource was refused"),
+    ("relative uri reference without a base uri", "a resource could not be located"),
+    ('missing href in <link rel="attachment">', "an attachment has no source"),
+    ("more columns than the table", "table cells were dropped"),
+)
+
+# Messages that are notices only: the output is complete and correct.
+NOTICE_MESSAGES: tuple[tuple[str, str], ...] = (
+    (
+        "using fonttools instead of harfbuzz-subset",
+        "fonts are subset with fontTools because the HarfBuzz subset library is not "
+        "installed; the PDF is complete (install libharfbuzz-subset0 for faster builds)",
+    ),
+    ("harfbuzz version 13+ with harfbuzz-vector", "colour emoji fonts are drawn without colour"),
+)
+
+_NOTED: set[str] = set()
+
+
+def classify_message(message: str) -> str:
+    """``"fail"`` for a message on :data:`FAILING_MESSAGES`, else ``"notice"``."""
     low = message.lower()
-    return any(
-        s in low
-        for s in (
-            "cannot be loaded",
-            "notdef",
-            "failed to load",
-            "refused",
-            "blocked",
-            "failed to render",
-            "unsupported",
-        )
-    )
+    if any(fragment in low for fragment, _ in FAILING_MESSAGES):
+        return "fail"
+    return "notice"
+
+
+def notice_text(message: str) -> str:
+    """The note shown for a notice: our own words where the message is known, else its text."""
+    low = message.lower()
+    for fragment, words in NOTICE_MESSAGES:
+        if fragment in low:
+            return words
+    return message.strip().splitlines()[0][:300]
+
+
+def _note_once(message: str) -> None:
+    text = notice_text(message)
+    if text in _NOTED:
+        return
+    _NOTED.add(text)
+    print(f"note: PDF renderer: {text}", file=sys.stderr)
