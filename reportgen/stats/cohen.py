@@ -464,9 +464,12 @@ def _cohen_estimate(
     q = 1.0 - p_e
     scale = n_f * q * q
     var = (
-        float((p * (w - marg * (1.0 - kappa)) ** 2).sum()) - (kappa - p_e * (1.0 - kappa)) ** 2
-    ) / scale
-    var0 = (float((np.outer(rows, cols) * (w - marg) ** 2).sum()) - p_e * p_e) / scale
+        _difference(
+            float((p * (w - marg * (1.0 - kappa)) ** 2).sum()), (kappa - p_e * (1.0 - kappa)) ** 2
+        )
+        / scale
+    )
+    var0 = _difference(float((np.outer(rows, cols) * (w - marg) ** 2).sum()), p_e * p_e) / scale
     se = math.sqrt(max(var, 0.0))
     se0 = math.sqrt(max(var0, 0.0))
     kmax = None if weighted else _kappa_max_counts(n_f, rows_n, cols_n, float(expected))
@@ -572,3 +575,14 @@ def bias_index(table: np.ndarray | list[list[int]]) -> float | None:
     t = _binary_iv(table)
     n = t.sum()
     return None if n == 0 else float(abs(t[0, 1] - t[1, 0]) / n)
+
+
+def _difference(first: float, second: float) -> float:
+    """``first - second``, or exactly 0 where the two agree to rounding (a few ulps).
+
+    A variance written as a difference of two nearly equal sums is rounding noise when the true
+    variance is zero (for example one rater using a single category); left as it is, its sign and
+    size (1e-16, so an SE of 1e-8) would depend on the machine's summation order.
+    """
+    diff = first - second
+    return 0.0 if abs(diff) <= 64 * 2.220446049250313e-16 * max(abs(first), abs(second)) else diff

@@ -4,7 +4,6 @@ sections in the vocabulary's order, absent measures absent (not zero), filters e
 from __future__ import annotations
 
 import dataclasses
-from pathlib import Path
 
 import pytest
 
@@ -55,14 +54,9 @@ def test_one_partial_per_section() -> None:
 
 def test_sections_follow_vocabulary() -> None:
     assert [t for _a, t in SECTIONS] == SECTION_TITLES
-    vocab = None
-    for cand in (
-        Path(__file__).resolve().parents[3] / "shared" / "VOCABULARY.md",
-        Path("/work/shared/VOCABULARY.md"),
-    ):
-        if cand.is_file():
-            vocab = cand.read_text(encoding="utf-8")
-            break
+    from _vocabulary import shared_text
+
+    vocab = shared_text()
     if vocab is None:
         pytest.skip("shared/VOCABULARY.md not beside the repository")
     block = vocab.split("## Report sections, in order", 1)[1].split("##", 1)[0]
