@@ -257,9 +257,21 @@ def test_verify_names_a_stripped_key(keyed: Built, tmp_path: Path) -> None:
 DEMOS = ("built_binary", "built_ordinal", "built_nominal")
 #: attachments per demo study: defect-triage has no reference file, so it carries three
 ATTACHMENTS = {
-    "SEAL-CHECK-DEMO": ["ratings.csv", "reference.csv", "results.json", "study.yaml"],
-    "FINISH-GRADE-DEMO": ["ratings.csv", "reference.csv", "results.json", "study.yaml"],
-    "RETURNS-TRIAGE-DEMO": ["ratings.csv", "results.json", "study.yaml"],
+    "SEAL-CHECK-DEMO": [
+        "build-record.json",
+        "ratings.csv",
+        "reference.csv",
+        "results.json",
+        "study.yaml",
+    ],
+    "FINISH-GRADE-DEMO": [
+        "build-record.json",
+        "ratings.csv",
+        "reference.csv",
+        "results.json",
+        "study.yaml",
+    ],
+    "RETURNS-TRIAGE-DEMO": ["build-record.json", "ratings.csv", "results.json", "study.yaml"],
 }
 PCT = {
     "agreement",
