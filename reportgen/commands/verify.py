@@ -7,7 +7,7 @@ from pathlib import Path
 
 import click
 
-from . import progress_printer
+from . import json_option, progress_printer, quiet_option
 
 
 @click.command("verify")
@@ -19,8 +19,8 @@ from . import progress_printer
     help="A certificate (PEM or DER) trusted to sign reports; repeatable. With it, a signature "
     "by anyone else fails.",
 )
-@click.option("--json", "as_json", is_flag=True, help="Print the findings as JSON.")
-@click.option("-q", "--quiet", is_flag=True, help="Print only failures.")
+@json_option("the findings")
+@quiet_option()
 def command(report: Path, trust: tuple[Path, ...], as_json: bool, quiet: bool) -> None:
     """Check a report PDF: its signature (if signed), its attachments, the SHA-256 of its inputs,
     a recomputation of every figure with this reportgen, and the figures it prints.
@@ -34,8 +34,14 @@ def command(report: Path, trust: tuple[Path, ...], as_json: bool, quiet: bool) -
     result = verify_report(report, trust=trust, progress=progress)
     if as_json:
         click.echo(json.dumps(result.as_dict(), indent=2))
-    elif not quiet or not result.ok:
+    elif not quiet:
         click.echo(result.format(), nl=False)
+    elif not result.ok:  # only the problems: the failed checks, no "ok" lines
+        lines = [f"{report}: NOT GENUINE"]
+        for f in result.failures():
+            lines.append(f"  FAIL  {f.check}: {f.message}")
+            lines += [f"          {d}" for d in f.details]
+        click.echo("\n".join(lines))
     if not result.ok:
         if as_json:  # the findings above are the whole JSON answer
             raise click.exceptions.Exit(1)
