@@ -50,6 +50,7 @@ class StrictWarnings(ReportgenError):
     "--no-pdf", "no_pdf", is_flag=True, help="Write the HTML, charts and results.json only."
 )
 @archive_option(
+    type=str,  # "" (the flag alone) means: find the archive by the rule
     is_flag=False,
     flag_value="",
     help="After building, copy the revision into the archive and index it (as `reportgen archive`); "
@@ -73,7 +74,7 @@ def command(
     generated_at: str | None,
     strict: bool,
     no_pdf: bool,
-    archive_dir: Path | None,
+    archive_dir: str | Path | None,
     archive_dir_old: Path | None,
     as_json: bool,
     quiet: bool,
@@ -145,7 +146,7 @@ def command(
         from ..archive import archive_revision
         from ..places import archive_location, require_archive
 
-        root = archive_location(archive_dir or None)
+        root = archive_location(Path(archive_dir) if archive_dir else None)
         require_archive(root, writing=True)
         progress("archiving")
         try:
