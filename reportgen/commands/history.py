@@ -53,12 +53,17 @@ def command(
     """Trend of the main figures and per-inspector figures across archived studies, with intervals,
     marking changes of the item set, and a table of every archived study with its verdict."""
     from ..archive import write_output
+    from ..archivecheck import check_archive_files
     from ..errors import InputError
     from ..history import format_text, load_history, render_history_html, render_history_pdf
+    from ..outputs import refuse_inside_archive, refuse_special
     from ..places import archive_location, require_archive
 
     root = archive_location(archive_dir)
     require_archive(root)
+    if output is not None:
+        refuse_special(output, key="--output")
+        refuse_inside_archive(output, "the trend report")
     entries, series = load_history(root, characteristic=characteristic, station=station)
     if as_json:
         from ..rounds import history_json
@@ -67,6 +72,7 @@ def command(
     elif output is None and not quiet:
         click.echo(format_text(entries, series), nl=False)
     if output is None:
+        check_archive_files(root, entries)
         return
     suffix = output.suffix.lower()
     if suffix not in (".html", ".htm", ".pdf"):
@@ -81,6 +87,7 @@ def command(
         filters={"characteristic": characteristic, "station": station},
     )
     data = render_history_pdf(html, generated_at=when) if suffix == ".pdf" else html.encode("utf-8")
-    write_output(output, data)
+    write_output(output, data, what="the trend report")
     if not quiet and not as_json:
         click.echo(f"wrote {output} ({len(entries)} archived revision(s), {len(series)} series)")
+    check_archive_files(root, entries)

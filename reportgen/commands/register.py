@@ -72,15 +72,18 @@ def command(
     certified-on, valid-until and status: valid, due, expired or not certified."""
     from ..archive import write_output
     from ..errors import CheckFailed, InputError
+    from ..outputs import refuse_inside_archive, refuse_special
     from ..places import archive_location, require_archive
     from ..register import FAIL_ON, format_table, load_register, to_csv, to_html
 
     targets = [*outputs, *(p for p in (csv_path, html_path) if p is not None)]
-    for t in targets:
+    for t in targets:  # before any work: nothing is written when one is refused
         if t.suffix.lower() not in (".csv", ".html", ".htm", ".pdf"):
             raise InputError.single(
                 t, "the register is written as .csv, .html or .pdf", key="--output"
             )
+        refuse_special(t)
+        refuse_inside_archive(t, "the register")
     root = archive_location(archive_dir)
     require_archive(root)
     day = as_of or dt.datetime.now(dt.UTC).date()
@@ -99,14 +102,18 @@ def command(
     for t in targets:
         suffix = t.suffix.lower()
         if suffix == ".csv":
-            write_output(t, to_csv(reg).encode("utf-8"))
+            write_output(t, to_csv(reg).encode("utf-8"), what="the register")
         elif suffix == ".pdf":
             from ..render.pdf import render_pdf
 
             when = dt.datetime.combine(day, dt.time(0, 0), tzinfo=dt.UTC)
-            write_output(t, render_pdf(to_html(reg), generated_at=when))
+            write_output(t, render_pdf(to_html(reg), generated_at=when), what="the register")
         else:
-            write_output(t, to_html(reg).encode("utf-8"))
+            write_output(t, to_html(reg).encode("utf-8"), what="the register")
+    from ..archive import list_entries
+    from ..archivecheck import check_archive_files
+
+    check_archive_files(root, list_entries(root, characteristic=characteristic, station=station))
     if fail_on:
         hits = reg.matching(FAIL_ON[fail_on])
         if hits:

@@ -291,9 +291,13 @@ def refuse_archive_target(target: Path) -> None:
     archived revision (``--replace``) or leave a revision folder there that the index does not know.
     """
     from ..archive import ENTRY_NAME, INDEX_NAME
+    from ..outputs import archive_containing
 
     root = target.parent.parent
-    if (target / ENTRY_NAME).exists() or (root / INDEX_NAME).exists():
+    inside = archive_containing(target)
+    if inside is not None:
+        root = inside
+    if inside is not None or (target / ENTRY_NAME).exists() or (root / INDEX_NAME).exists():
         raise ExistsError(
             f"{root} is a reportgen archive: builds are never written into it, and archived "
             "revisions are never overwritten; build into another --output folder, then run "
