@@ -171,3 +171,29 @@ def test_verify_quiet_prints_only_the_failed_checks(run_cli, lug: Path, tmp_path
     lines = out.splitlines()
     assert lines[0] == f"{bad}: NOT GENUINE"
     assert lines[1:] and all(ln.startswith(("  FAIL  ", "          ")) for ln in lines[1:])
+
+
+@pytest.mark.render
+def test_register_output_by_ending_and_json(run_cli, tmp_path: Path) -> None:
+    import datetime as dt
+
+    from reportgen.archive import archive_revision
+    from tests._revisions import make_revision
+
+    root = tmp_path / "archive"
+    archive_revision(
+        make_revision(tmp_path / "output"),
+        archive_dir=root,
+        now=dt.datetime(2026, 3, 1, 12, 0, tzinfo=dt.UTC),
+    )
+    pdf, csv_file = tmp_path / "reg.pdf", tmp_path / "reg.csv"
+    base = ("register", "--archive", root, "--as-of", "2026-06-01")
+    code, out, err = run_cli(*base, "-o", pdf, "-o", csv_file, "--json")
+    assert code == 0, err
+    assert pdf.read_bytes().startswith(b"%PDF-")
+    rows = json.loads(out)["rows"]
+    assert rows and json.loads(out)["as_of"] == "2026-06-01"
+    header = csv_file.read_text().splitlines()[0].split(",")
+    assert sorted(rows[0]) == sorted(header)
+    code, _, err = run_cli(*base, "-o", tmp_path / "reg.txt")
+    assert code == 2 and "written as .csv, .html or .pdf" in err

@@ -76,14 +76,16 @@ def command(
     from ..places import archive_location, require_archive
     from ..register import FAIL_ON, format_table, load_register, to_csv, to_html
 
-    targets = [*outputs, *(p for p in (csv_path, html_path) if p is not None)]
-    for t in targets:  # before any work: nothing is written when one is refused
-        if t.suffix.lower() not in (".csv", ".html", ".htm", ".pdf"):
+    formats = {".csv": "csv", ".html": "html", ".htm": "html", ".pdf": "pdf"}
+    targets = [(t, formats.get(t.suffix.lower())) for t in outputs]
+    targets += [(p, f) for p, f in ((csv_path, "csv"), (html_path, "html")) if p is not None]
+    for t, fmt in targets:  # before any work: nothing is written when one is refused
+        refuse_special(t)
+        refuse_inside_archive(t, "the register")
+        if fmt is None:
             raise InputError.single(
                 t, "the register is written as .csv, .html or .pdf", key="--output"
             )
-        refuse_special(t)
-        refuse_inside_archive(t, "the register")
     root = archive_location(archive_dir)
     require_archive(root)
     day = as_of or dt.datetime.now(dt.UTC).date()
@@ -99,11 +101,10 @@ def command(
         click.echo(json.dumps({"as_of": day.isoformat(), "rows": rows}, indent=2))
     elif not quiet:
         click.echo(format_table(reg), nl=False)
-    for t in targets:
-        suffix = t.suffix.lower()
-        if suffix == ".csv":
+    for t, fmt in targets:
+        if fmt == "csv":
             write_output(t, to_csv(reg).encode("utf-8"), what="the register")
-        elif suffix == ".pdf":
+        elif fmt == "pdf":
             from ..render.pdf import render_pdf
 
             when = dt.datetime.combine(day, dt.time(0, 0), tzinfo=dt.UTC)
