@@ -36,8 +36,14 @@ def round_id(base: str, n: int) -> str:
     return base if n == 1 else f"{base}.round{n}"
 
 
-def history_json(entries: Sequence[Any], series: Sequence[Any]) -> str:
-    """``history --json``: every archived revision with its round, and the series in order."""
+def history_json(
+    entries: Sequence[Any],
+    series: Sequence[Any],
+    *,
+    signed: dict[tuple[str, int], list[str]] | None = None,
+) -> str:
+    """``history --json``: every archived revision with its round and its signed copies (files
+    relative to the archive), and the series in order."""
 
     def row(e: Any, superseded_by: int | None = None) -> dict[str, Any]:
         base, n = split_round(e.study_id)
@@ -52,6 +58,7 @@ def history_json(entries: Sequence[Any], series: Sequence[Any]) -> str:
             "station": e.station,
             "folder": e.folder,
             "superseded_by": superseded_by,
+            "signed": sorted((signed or {}).get((e.study_id, e.revision), [])),
         }
 
     out = {

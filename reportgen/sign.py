@@ -61,33 +61,10 @@ class SignatureCheck:
         return f"signed by {self.signer} at {when}; intact, covers the whole file; {trust}"
 
 
-def _load_signer(key: Path, passphrase: bytes | None):  # type: ignore[no-untyped-def]
-    from pyhanko.sign import signers
+def _load_signer(key: Path, passphrase: bytes | None, cert: Path | None = None):  # type: ignore[no-untyped-def]
+    from .signkey import load_signer
 
-    if not key.is_file():
-        raise InputError.single(key, "the key file does not exist", key="--key")
-    try:
-        with _quiet_pyhanko():  # pyHanko logs a traceback for a wrong passphrase; we say it plainly
-            signer = signers.SimpleSigner.load_pkcs12(str(key), passphrase=passphrase)
-    except Exception as exc:  # noqa: BLE001 - pyHanko/cryptography raise many types here
-        hint = (
-            "give the passphrase with --passphrase-env VAR"
-            if passphrase is None
-            else "check the passphrase"
-        )
-        raise InputError.single(
-            key, f"cannot read the PKCS#12 key file: {type(exc).__name__}: {exc}", hint=hint
-        ) from None
-    if signer is None:
-        hint = (
-            "give the passphrase with --passphrase-env VAR"
-            if passphrase is None
-            else "check the passphrase"
-        )
-        raise InputError.single(
-            key, "cannot read the PKCS#12 key file (wrong or missing passphrase?)", hint=hint
-        )
-    return signer
+    return load_signer(key, cert, passphrase)
 
 
 def sign_report(
@@ -98,8 +75,10 @@ def sign_report(
     output: str | Path | None = None,
     reason: str = DEFAULT_REASON,
     location: str | None = None,
+    cert: str | Path | None = None,
 ) -> Path:
-    """Sign ``pdf`` with the PKCS#12 ``key``; write ``output`` (default ``<stem>-signed.pdf``)."""
+    """Sign ``pdf`` with ``key`` (PKCS#12, or a PEM private key with ``cert`` or its certificate
+    in the same file); write ``output`` (default ``<stem>-signed.pdf``)."""
     from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
     from pyhanko.pdf_utils.misc import PdfReadError
     from pyhanko.sign import signers
@@ -114,7 +93,7 @@ def sign_report(
         raise ExistsError(
             f"{out} already exists; a signed report is never overwritten — choose another -o"
         )
-    signer = _load_signer(Path(key), passphrase)
+    signer = _load_signer(Path(key), passphrase, Path(cert) if cert else None)
     refuse_not_genuine(src)
     data = src.read_bytes()
     try:

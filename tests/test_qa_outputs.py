@@ -162,8 +162,8 @@ def test_sign_wrong_passphrase_prints_no_traceback(tmp_path: Path) -> None:
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr
     assert proc.stderr.strip().splitlines() == [
-        f"{p12}: error: cannot read the PKCS#12 key file (wrong or missing passphrase?)",
-        "  hint: check the passphrase",
+        f"{p12}: error: --key: wrong passphrase for the PKCS#12 file",
+        "  hint: give the passphrase with --passphrase-env VAR (the name of the variable holding it)",
     ]
     assert not (tmp_path / "report-signed.pdf").exists()
 

@@ -65,12 +65,21 @@ def command(
         refuse_special(output, key="--output")
         refuse_inside_archive(output, "the trend report")
     entries, series = load_history(root, characteristic=characteristic, station=station)
+    from ..signedcopy import signed_copies
+
+    signed: dict[tuple[str, int], list[str]] = {}
+    for c in signed_copies(root):
+        signed.setdefault((c["study_id"], c["revision"]), []).append(c["file"])
     if as_json:
         from ..rounds import history_json
 
-        click.echo(history_json(entries, series))
+        click.echo(history_json(entries, series, signed=signed))
     elif output is None and not quiet:
         click.echo(format_text(entries, series), nl=False)
+        from ..rounds import point_label
+
+        for (sid, rev), files in sorted(signed.items()):
+            click.echo(f"signed: {point_label(sid, rev)}: " + ", ".join(files))
     if output is None:
         check_archive_files(root, entries)
         return

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import click
 
-from . import json_option, quiet_option
+from . import archive_option, json_option, quiet_option
 
 
 @click.command("sign")
@@ -16,7 +16,14 @@ from . import json_option, quiet_option
     "--key",
     required=True,
     type=click.Path(path_type=Path, dir_okay=False),
-    help="The signer's certificate and private key as a PKCS#12 file (.p12 / .pfx).",
+    help="The signer's key: a PKCS#12 file (.p12/.pfx) with its certificate, or a PEM private "
+    "key (with its certificate in the same file, or in --cert).",
+)
+@click.option(
+    "--cert",
+    type=click.Path(path_type=Path, dir_okay=False),
+    default=None,
+    help="The signer's certificate (PEM), when --key is a PEM private key alone.",
 )
 @click.option(
     "--passphrase-env",
@@ -37,15 +44,22 @@ from . import json_option, quiet_option
     help="Reason recorded in the signature (default: sign-off of the report).",
 )
 @click.option("--location", default=None, help="Place of signing recorded in the signature.")
+@archive_option(
+    help="Sign an archived report: REPORT is a PDF inside this archive (found from REPORT's "
+    "folder when not given); the signed copy is written into the archive beside it, as a new "
+    "indexed file, and the original stays as it is.",
+)
 @json_option("the signed file")
 @quiet_option()
 def command(
     report: Path,
     key: Path,
+    cert: Path | None,
     passphrase_env: str | None,
     output: Path | None,
     reason: str | None,
     location: str | None,
+    archive_dir: Path | None,
     as_json: bool,
     quiet: bool,
 ) -> None:
@@ -67,14 +81,39 @@ def command(
                 key="--passphrase-env",
             )
         passphrase = value.encode("utf-8")
-    out = sign_report(
-        report,
-        key=key,
-        passphrase=passphrase,
-        output=output,
-        reason=reason or DEFAULT_REASON,
-        location=location,
-    )
+    from ..signedcopy import archive_root_of, sign_into_archive
+
+    root = archive_root_of(report)
+    if archive_dir is not None:
+        given = archive_dir.resolve()
+        if root is None or root.resolve() != given:
+            raise InputError.single(
+                report, f"not a report inside the archive {given}", key="REPORT"
+            )
+    if root is not None:
+        if output is not None:
+            raise click.UsageError(
+                "REPORT is archived: its signed copy is written into the archive; leave out -o"
+            )
+        out = sign_into_archive(
+            report,
+            root,
+            key=key,
+            cert=cert,
+            passphrase=passphrase,
+            reason=reason or DEFAULT_REASON,
+            location=location,
+        )
+    else:
+        out = sign_report(
+            report,
+            key=key,
+            cert=cert,
+            passphrase=passphrase,
+            output=output,
+            reason=reason or DEFAULT_REASON,
+            location=location,
+        )
     if as_json:
         import json
 

@@ -10,6 +10,24 @@ import click
 from . import archive_option, json_option, progress_printer, quiet_option
 
 
+def _signed_copy_notes(report: Path) -> list[str]:
+    """For a PDF inside an archive: its indexed signed copies, or what it is a signed copy of."""
+    from ..signedcopy import archive_root_of, signed_copies
+
+    root = archive_root_of(report)
+    if root is None:
+        return []
+    rel = report.resolve().relative_to(root.resolve()).as_posix()
+    notes = []
+    for c in signed_copies(root):
+        who = f"signed by {c['signer']}" + (f" at {c['signed_at']}" if c["signed_at"] else "")
+        if c["original"] == rel:
+            notes.append(f"signed copy in the archive: {root / c['file']} ({who})")
+        elif c["file"] == rel:
+            notes.append(f"this is the indexed signed copy of {root / c['original']} ({who})")
+    return notes
+
+
 @click.command("verify")
 @click.argument("report", type=click.Path(path_type=Path, dir_okay=False), required=False)
 @click.option(
@@ -57,10 +75,15 @@ def command(
     assert report is not None
     progress = progress_printer(quiet or as_json)
     result = verify_report(report, trust=trust, progress=progress)
+    signed_notes = _signed_copy_notes(report)
     if as_json:
-        click.echo(json.dumps(result.as_dict(), indent=2))
+        click.echo(
+            json.dumps({**result.as_dict(), "archive_signed_copies": signed_notes}, indent=2)
+        )
     elif not quiet:
         click.echo(result.format(), nl=False)
+        for note in signed_notes:
+            click.echo(f"  note  {note}")
     elif not result.ok:  # only the problems: the failed checks, no "ok" lines
         lines = [f"{report}: NOT GENUINE"]
         for f in result.failures():
