@@ -744,7 +744,10 @@ def write_plan(
     Everything is rendered into a temporary sibling folder first; only when every file is
     written is the folder renamed into place.  Raises ExistsError when a plan is already there.
     """
+    from .outputs import refuse_inside_archive
+
     final = plan_folder(study, output_dir)
+    refuse_inside_archive(final, "a plan")
     if final.exists():
         raise ExistsError(
             f"{final}: a plan already exists; it is kept. Remove it or choose another --output folder."

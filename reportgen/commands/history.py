@@ -55,11 +55,18 @@ def command(
     from ..archive import resolve_archive_dir, write_output
     from ..errors import InputError
     from ..history import format_text, load_history, render_history_html, render_history_pdf
+    from ..outputs import refuse_inside_archive, refuse_special
 
     root = resolve_archive_dir(archive_dir)
+    if output is not None:
+        refuse_special(output, key="--output")
+        refuse_inside_archive(output, "the trend report")
     entries, series = load_history(root, characteristic=characteristic, station=station)
+    from ..archivecheck import check_archive_files
+
     if output is None:
         click.echo(format_text(entries, series), nl=False)
+        check_archive_files(root, entries)
         return
     suffix = output.suffix.lower()
     if suffix not in (".html", ".htm", ".pdf"):
@@ -74,5 +81,6 @@ def command(
         filters={"characteristic": characteristic, "station": station},
     )
     data = render_history_pdf(html, generated_at=when) if suffix == ".pdf" else html.encode("utf-8")
-    write_output(output, data)
+    write_output(output, data, what="the trend report")
     click.echo(f"wrote {output} ({len(entries)} archived revision(s), {len(series)} series)")
+    check_archive_files(root, entries)

@@ -75,9 +75,14 @@ def command(
     certified-on, valid-until and status: valid, due, expired or not certified."""
     from ..archive import resolve_archive_dir, write_output
     from ..errors import CheckFailed
+    from ..outputs import refuse_inside_archive, refuse_special
     from ..register import FAIL_ON, format_table, load_register, to_csv, to_html
 
     root = resolve_archive_dir(archive_dir)
+    for path in (csv_path, html_path):  # before any work: nothing is written when one is refused
+        if path is not None:
+            refuse_special(path)
+            refuse_inside_archive(path, "the register")
     day = as_of or dt.datetime.now(dt.UTC).date()
     reg = load_register(
         root, as_of=day, due_within=due_within, characteristic=characteristic, station=station
@@ -85,9 +90,13 @@ def command(
     if not quiet:
         click.echo(format_table(reg), nl=False)
     if csv_path is not None:
-        write_output(csv_path, to_csv(reg).encode("utf-8"))
+        write_output(csv_path, to_csv(reg).encode("utf-8"), what="the register")
     if html_path is not None:
-        write_output(html_path, to_html(reg).encode("utf-8"))
+        write_output(html_path, to_html(reg).encode("utf-8"), what="the register")
+    from ..archive import list_entries
+    from ..archivecheck import check_archive_files
+
+    check_archive_files(root, list_entries(root, characteristic=characteristic, station=station))
     if fail_on:
         hits = reg.matching(FAIL_ON[fail_on])
         if hits:

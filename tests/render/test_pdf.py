@@ -39,7 +39,9 @@ def test_pdfa3b_and_attachments(built_binary: Built) -> None:
     assert "<pdfaid:conformance>B</pdfaid:conformance>" in xmp or 'pdfaid:conformance="B"' in xmp
     atts = reader.attachments
     folder = STUDIES / "seal-check"
-    assert sorted(atts) == sorted(["study.yaml", "ratings.csv", "reference.csv", "results.json"])
+    assert sorted(atts) == sorted(
+        ["study.yaml", "ratings.csv", "reference.csv", "results.json", "build-record.json"]
+    )
     for name in ("study.yaml", "ratings.csv", "reference.csv"):
         assert atts[name][0] == (folder / name).read_bytes(), name
     assert atts["results.json"][0] == (built_binary.folder / "results.json").read_bytes()
