@@ -108,7 +108,15 @@ def format_summary(results: dict[str, Any]) -> str:
     if rep:
         lines += ["", "Rater repeatability (each rater against their own other trials)"]
         rows = [
-            ["rater", "Agreeing/Items", "Agreement rate", pct, "Mixed calls", "Fleiss' kappa", pct]
+            [
+                "rater",
+                "Agreeing/Items",
+                "Agreement rate",
+                pct,
+                "Changed calls",
+                "Fleiss' kappa",
+                pct,
+            ]
         ]
         for rid, e in rep.items():
             rows.append(
