@@ -15,6 +15,11 @@ MODULES = [
     "reportgen.stats.bootstrap",
     "reportgen.stats.weights",
     "reportgen.stats.results",
+    "reportgen.stats.binomial_fit",
+    "reportgen.stats.gauge_curve",
+    "reportgen.stats.pod",
+    "reportgen.stats.zone",
+    "reportgen.measured",
 ]
 FORBIDDEN = ["pandas", "jinja2", "matplotlib", "weasyprint", "scipy", "statsmodels", "sklearn"]
 
