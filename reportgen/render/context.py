@@ -999,6 +999,7 @@ def build_context(
     draft: bool = False,
     charts: Mapping[str, Any] | None = None,
     plan: Mapping[str, Any] | None = None,
+    software: list[dict[str, str]] | None = None,
 ) -> ReportContext:
     """Assemble the context from the study, its ratings and the (judged) results.
 
@@ -1106,7 +1107,7 @@ def build_context(
         ],
         sources=_sources(study, ratings),
         completeness=completeness,
-        software=_versions(),
+        software=list(software) if software is not None else _versions(),
         charts=dict(charts or {}),
         ratings_table=_ratings_table(ratings, study, results),
         bibliography=[{"key": k, "text": BIBLIOGRAPHY[k]} for k in sorted(used_keys)],
@@ -1127,7 +1128,7 @@ def _templates(study: Study) -> dict[str, Any]:
     if folder is None:
         return {"override": None, "files": []}
     files = (
-        sorted(p.name for p in Path(folder).iterdir() if p.is_file())
+        sorted(p.name for p in Path(folder).iterdir() if p.is_file() and not p.is_symlink())
         if Path(folder).is_dir()
         else []
     )
