@@ -141,6 +141,7 @@ target_half_width: 0.10         # planning figure: wanted half-width of the agre
 # signoff: {{prepared_by: "", reviewed_by: "", approved_by: ""}}
 # report: {{paper: A4}}          # A4 | letter
 # plan: {{seed: 7}}              # used by `reportgen plan`
+# measured_reference: {{file: values.csv, unit: mm, lower_limit: 9.98, upper_limit: 10.02}}  # item,value file; see README
 """
 
 
