@@ -50,6 +50,10 @@ ENV_ARCHIVE = "REPORTGEN_ARCHIVE"
 #: test hook only: "copy:SECONDS" sleeps after the first copied file, "commit:SECONDS" sleeps
 #: after the rename and before the commit.  Used by the crash tests; never set it otherwise.
 ENV_TEST_PAUSE = "REPORTGEN_TEST_ARCHIVE_PAUSE"
+#: test hook only: the name of a step after which the process ends at once (``os._exit``), as
+#: if killed: "pending", "copy", "entry", "rename", "insert", "done".  Never set it otherwise.
+ENV_TEST_KILL = "REPORTGEN_TEST_ARCHIVE_KILL"
+KILL_STEPS = ("pending", "copy", "entry", "rename", "insert", "done")
 
 INDEX_NAME = "index.sqlite"
 ENTRY_NAME = "archive-entry.json"
@@ -109,6 +113,12 @@ CREATE TABLE IF NOT EXISTS revisions (
     archived_at      TEXT    NOT NULL, -- UTC, ISO 8601 with Z
     folder           TEXT    NOT NULL, -- relative to the archive root
     UNIQUE (study_id, revision)
+);
+CREATE TABLE IF NOT EXISTS pending (
+    folder     TEXT PRIMARY KEY,       -- <study-id>/rev<N>, relative to the archive root
+    partial    TEXT NOT NULL,          -- the hidden copy's name, <study-id>/.partial-…
+    entry      TEXT NOT NULL,          -- JSON: the index row to insert once the folder is in place
+    started_at TEXT NOT NULL
 );
 CREATE INDEX IF NOT EXISTS revisions_by_characteristic ON revisions (characteristic, station);
 CREATE TRIGGER IF NOT EXISTS revisions_read_only_update BEFORE UPDATE ON revisions
@@ -315,17 +325,11 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
             if rel == ENTRY_NAME:
                 raise InputError.single(p, f"{ENTRY_NAME} is reserved for the archive")
             files[rel] = sha256_file(p)
-    _check_manifest(path, files)
-    html = path / f"{study_id}-rev{revision}.html"
-    if (
-        html.is_file()
-        and '<body class="draft"' in html.read_text(encoding="utf-8", errors="replace")[:20000]
-    ):
-        raise InputError.single(
-            html,
-            "this is a draft (built with --replace); drafts are not archived",
-            hint="raise study.revision in the study definition and build again",
-        )
+        elif not p.is_dir():
+            raise InputError.single(
+                p,
+                "a special file (FIFO, device or socket) is not archived; the folder must hold plain files",
+            )
     pdf_name = f"{study_id}-rev{revision}.pdf"
     pdf = path / pdf_name
     if not pdf.is_file():
@@ -347,8 +351,14 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
             "differs from the results.json attached to the report PDF: the folder was changed after build",
             hint="rebuild the revision; do not archive a changed report",
         )
+    from .archivecheck import check_built_folder
+    from .verify import GENERATED_ATTACHMENTS
+
+    files = check_built_folder(path, files, pdf, attachments)
     inputs = {
-        name: sha256_bytes(data) for name, data in attachments.items() if name != "results.json"
+        name: sha256_bytes(data)
+        for name, data in attachments.items()
+        if name not in GENERATED_ATTACHMENTS
     }
     facts = _results_study_facts(results)
     yaml_names = [n for n in attachments if n.lower().endswith((".yaml", ".yml"))]
@@ -358,26 +368,6 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
             if facts.get(k) in (None, {}, "") and v not in (None, {}, ""):
                 facts[k] = v
     return BuiltRevision(path, study_id, revision, results, pdf, files, inputs, facts)
-
-
-def _check_manifest(path: Path, files: dict[str, str]) -> None:
-    """If the build wrote a SHA-256 manifest, the folder must still match it."""
-    for name in ("SHA256SUMS", "sha256sums.txt", "MANIFEST.sha256"):
-        man = path / name
-        if not man.is_file():
-            continue
-        for n, line in enumerate(man.read_text(encoding="utf-8").splitlines(), start=1):
-            parts = line.strip().split(maxsplit=1)
-            if len(parts) != 2:
-                continue
-            digest, rel = parts[0].lower(), parts[1].lstrip("*").strip()
-            if files.get(rel) != digest:
-                raise InputError.single(
-                    man,
-                    f"{rel}: the folder no longer matches the manifest written by build",
-                    line=n,
-                    hint="rebuild the revision; do not archive a changed report",
-                )
 
 
 # --------------------------------------------------------------------------- figures
@@ -507,6 +497,20 @@ def software_version(results: dict[str, Any]) -> str | None:
             return b
     v = results.get("software_version")
     return v if isinstance(v, str) else None
+
+
+def _built_with(pdf: Path) -> str | None:
+    """The reportgen version in the report PDF's attached build record, or None."""
+    from .buildrecord import RECORD_NAME, parse_record
+    from .verify import read_attachments
+
+    data = read_attachments(pdf).get(RECORD_NAME)
+    if data is None:
+        return None
+    try:
+        return parse_record(data).version("reportgen")
+    except ValueError:
+        return None
 
 
 # --------------------------------------------------------------------------- the index
@@ -667,6 +671,8 @@ def _test_pause(stage: str) -> None:
     if hook.startswith(stage + ":"):
         print(f"test pause: {stage}", file=sys.stderr, flush=True)
         time.sleep(float(hook.split(":", 1)[1]))
+    if os.environ.get(ENV_TEST_KILL) == stage:
+        os._exit(137)  # as if killed: no clean-up, no rollback by Python, open transaction lost
 
 
 def _make_writable(path: Path) -> None:
@@ -703,46 +709,91 @@ def _partial_is_abandoned(name: str) -> bool:
 
 
 def recover(conn: sqlite3.Connection, root: Path) -> list[str]:
-    """Tidy up after interrupted runs; call inside a write transaction.  Returns what was done."""
+    """Tidy up after interrupted runs; call inside a write transaction.  Returns what was done.
+
+    Only work this tool recorded is completed: a revision folder is indexed only when the index
+    holds a pending row for it (written before the copy began) and every file of the folder
+    matches that row's SHA-256 values.  An ``archive-entry.json`` alone is never enough.
+    """
     done: list[str] = []
     known = {
         (r["study_id"], r["revision"])
         for r in conn.execute("SELECT study_id, revision FROM revisions")
     }
-    for study_dir in sorted(p for p in root.iterdir() if p.is_dir() and not p.name.startswith(".")):
-        for sub in sorted(study_dir.iterdir()):
-            if sub.name.startswith(PARTIAL_PREFIX) and sub.is_dir():
-                if _partial_is_abandoned(sub.name):
-                    _remove_partial(sub)
-                    done.append(f"removed interrupted copy {sub.relative_to(root)}")
-                continue
-            m = _REV_RE.match(sub.name)
-            if not m or (study_dir.name, int(m.group(1))) in known:
-                continue
-            entry_file = sub / ENTRY_NAME
-            if not entry_file.is_file():
+    pending = {r["folder"]: r for r in conn.execute("SELECT * FROM pending")}
+    for folder, row in sorted(pending.items()):
+        final = root / folder
+        partial = root / row["partial"]
+        try:
+            entry = ArchiveEntry(**json.loads(row["entry"]))
+        except (ValueError, TypeError):
+            conn.execute("DELETE FROM pending WHERE folder = ?", (folder,))
+            continue
+        if (entry.study_id, entry.revision) in known:
+            conn.execute("DELETE FROM pending WHERE folder = ?", (folder,))
+            continue
+        if not _partial_is_abandoned(partial.name):
+            continue  # another run is still at work on it
+        if partial.exists():
+            _remove_partial(partial)
+            done.append(f"removed interrupted copy {partial.relative_to(root)}")
+        if final.is_dir():
+            bad = _folder_differences(final, entry)
+            if bad:
                 done.append(
-                    f"ignored {sub.relative_to(root)}: no {ENTRY_NAME}, not made by reportgen archive"
+                    f"ignored {folder}: its files do not match what archive recorded ({'; '.join(bad[:3])})"
                 )
-                continue
-            try:
-                entry = ArchiveEntry(**json.loads(entry_file.read_text(encoding="utf-8")))
-            except (ValueError, TypeError) as exc:
-                done.append(f"ignored {sub.relative_to(root)}: unreadable {ENTRY_NAME} ({exc})")
-                continue
-            bad = [
-                rel
-                for rel, h in entry.files.items()
-                if not (sub / rel).is_file() or sha256_file(sub / rel) != h
-            ]
-            if bad or entry.study_id != study_dir.name or entry.revision != int(m.group(1)):
-                done.append(f"ignored {sub.relative_to(root)}: its files do not match {ENTRY_NAME}")
+                conn.execute("DELETE FROM pending WHERE folder = ?", (folder,))
                 continue
             _insert(conn, entry)
+            known.add((entry.study_id, entry.revision))
             done.append(
                 f"completed the interrupted archiving of {entry.study_id} rev{entry.revision}"
             )
+        conn.execute("DELETE FROM pending WHERE folder = ?", (folder,))
+    for study_dir in sorted(p for p in root.iterdir() if p.is_dir() and not p.name.startswith(".")):
+        for sub in sorted(study_dir.iterdir()):
+            rel = sub.relative_to(root).as_posix()
+            if sub.name.startswith(PARTIAL_PREFIX) and sub.is_dir():
+                if rel not in {r["partial"] for r in pending.values()} and _partial_is_abandoned(
+                    sub.name
+                ):
+                    _remove_partial(sub)
+                    done.append(f"removed interrupted copy {rel}")
+                continue
+            m = _REV_RE.match(sub.name)
+            if not m or (study_dir.name, int(m.group(1))) in known or rel in pending:
+                continue
+            done.append(
+                f"ignored {rel}: the index holds no record of archiving it, so it was not made by "
+                f"reportgen archive (a {ENTRY_NAME} alone is never indexed)"
+            )
     return done
+
+
+def _folder_differences(folder: Path, entry: ArchiveEntry) -> list[str]:
+    """Files of an archived folder that differ from ``entry`` (which the index recorded)."""
+    out = []
+    present = {
+        p.relative_to(folder).as_posix(): p
+        for p in folder.rglob("*")
+        if p.is_file() or p.is_symlink()
+    }
+    for rel, digest in sorted(entry.files.items()):
+        p = present.get(rel)
+        if p is None or p.is_symlink():
+            out.append(f"{rel} missing")
+        elif sha256_file(p) != digest:
+            out.append(f"{rel} changed")
+    for rel in sorted(set(present) - set(entry.files) - {ENTRY_NAME}):
+        out.append(f"{rel} added")
+    try:
+        written = json.loads((folder / ENTRY_NAME).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        written = None
+    if written != json.loads(json.dumps(entry.__dict__)):
+        out.append(f"{ENTRY_NAME} differs")
+    return out
 
 
 def _insert(conn: sqlite3.Connection, entry: ArchiveEntry) -> None:
@@ -780,7 +831,15 @@ def archive_revision(
     now: dt.datetime | None = None,
     progress: Callable[[str], None] | None = None,
 ) -> ArchiveEntry:
-    """Copy a built revision into the archive and index it; refuses to overwrite (ExistsError)."""
+    """Copy a built revision into the archive and index it; refuses to overwrite (ExistsError).
+
+    Steps, each safe to be killed after (``archive`` run again completes the work): a pending
+    row is committed; the files are copied into a hidden partial folder and checked; the entry
+    file is written; under one write transaction the partial folder is renamed into place, its
+    files are checked again against what was hashed, the row is inserted and the pending row
+    removed.  Archiving a revision that is archived already with the very same files (a re-run
+    after an interruption) returns its entry.
+    """
     from . import __version__
 
     say = progress or (lambda _msg: None)
@@ -793,6 +852,11 @@ def archive_revision(
         with _write_transaction(conn):
             for msg in recover(conn, root):
                 say(msg)
+        same = _same_as_archived(conn, root, built)
+        if same is not None:
+            say(f"{built.study_id} rev{built.revision} is archived already with these very files")
+            return same
+        with _write_transaction(conn):
             _refuse_existing(conn, root, built)
         stamp = (now or _utc_now()).astimezone(dt.UTC).replace(microsecond=0)
         facts = built.facts
@@ -815,7 +879,7 @@ def archive_revision(
             item_set_sha256=item_set_digest(items),
             files=built.files,
             inputs=built.inputs,
-            software_version=software_version(built.results),
+            software_version=software_version(built.results) or _built_with(built.pdf),
             archiver_version=__version__,
             archived_at=stamp.strftime("%Y-%m-%dT%H:%M:%SZ"),
             folder=f"{built.study_id}/rev{built.revision}",
@@ -825,6 +889,14 @@ def archive_revision(
         partial = study_dir / (
             f"{PARTIAL_PREFIX}rev{built.revision}-{socket.gethostname()}-{os.getpid()}-{secrets.token_hex(4)}"
         )
+        entry_json = json.dumps(entry.__dict__, indent=2, sort_keys=True) + "\n"
+        with _write_transaction(conn):
+            _refuse_existing(conn, root, built)
+            conn.execute(
+                "INSERT INTO pending (folder, partial, entry, started_at) VALUES (?, ?, ?, ?)",
+                (entry.folder, partial.relative_to(root).as_posix(), entry_json, entry.archived_at),
+            )
+        _test_pause("pending")
         partial.mkdir()
         try:
             for n, (rel, digest) in enumerate(built.files.items()):
@@ -833,9 +905,7 @@ def archive_revision(
                 if n == 0:
                     _test_pause("copy")
             entry_path = partial / ENTRY_NAME
-            entry_path.write_text(
-                json.dumps(entry.__dict__, indent=2, sort_keys=True) + "\n", encoding="utf-8"
-            )
+            entry_path.write_text(entry_json, encoding="utf-8")
             with open(entry_path, "rb") as f:
                 os.fsync(f.fileno())
             os.chmod(entry_path, 0o444)
@@ -846,23 +916,69 @@ def archive_revision(
                 os.chmod(d, 0o555)
             _fsync_dir(partial)
             os.chmod(partial, 0o555)
+            _test_pause("entry")
             final = study_dir / f"rev{built.revision}"
             with _write_transaction(conn):
-                _refuse_existing(conn, root, built)
+                _refuse_existing(conn, root, built, own_pending=entry.folder)
                 os.rename(partial, final)
                 _fsync_dir(study_dir)
+                _test_pause("rename")
                 _test_pause("commit")
+                bad = _folder_differences(final, entry)  # after the copy: what was hashed?
+                if bad:
+                    raise InputError.single(
+                        final,
+                        "the archived copy does not match the files that were checked: "
+                        + "; ".join(bad[:5]),
+                        hint="run archive again; if it persists, check the disk",
+                    )
                 _insert(conn, entry)
+                conn.execute("DELETE FROM pending WHERE folder = ?", (entry.folder,))
+                _test_pause("insert")
         except BaseException:
             if partial.exists():
                 _remove_partial(partial)
+            with contextlib.suppress(sqlite3.Error), _write_transaction(conn):
+                conn.execute(
+                    "DELETE FROM pending WHERE folder = ? AND partial = ?",
+                    (entry.folder, partial.relative_to(root).as_posix()),
+                )
             raise
     finally:
         conn.close()
+    _test_pause("done")
     return entry
 
 
-def _refuse_existing(conn: sqlite3.Connection, root: Path, built: BuiltRevision) -> None:
+def _same_as_archived(
+    conn: sqlite3.Connection, root: Path, built: BuiltRevision
+) -> ArchiveEntry | None:
+    """The archived entry of this revision when it holds exactly the built files, else None."""
+    row = conn.execute(
+        "SELECT * FROM revisions WHERE study_id = ? AND revision = ?",
+        (built.study_id, built.revision),
+    ).fetchone()
+    if row is None:
+        return None
+    entry = ArchiveEntry.from_row(row)
+    if entry.files != built.files:
+        return None
+    if _folder_differences(root / entry.folder, entry):
+        return None
+    return entry
+
+
+def _refuse_existing(
+    conn: sqlite3.Connection, root: Path, built: BuiltRevision, *, own_pending: str | None = None
+) -> None:
+    folder = f"{built.study_id}/rev{built.revision}"
+    if own_pending is None:
+        busy = conn.execute("SELECT started_at FROM pending WHERE folder = ?", (folder,)).fetchone()
+        if busy is not None:
+            raise ExistsError(
+                f"{built.study_id} rev{built.revision} is being archived by another run (since "
+                f"{busy['started_at']}); wait for it, then run archive again"
+            )
     row = conn.execute(
         "SELECT archived_at FROM revisions WHERE study_id = ? AND revision = ?",
         (built.study_id, built.revision),
@@ -885,8 +1001,13 @@ def is_read_only(path: Path) -> bool:
     return not (path.stat().st_mode & (stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
 
 
-def write_output(path: str | Path, data: bytes, *, mode: int = 0o644) -> None:
+def write_output(
+    path: str | Path, data: bytes, *, mode: int = 0o644, what: str | None = None
+) -> None:
     """Write a user-requested output file whole or not at all (temp sibling, fsync, replace).
+
+    Never inside an archive folder, never over a file reportgen did not write (ExistsError,
+    see :mod:`reportgen.outputs`), never onto a device or FIFO (InputError).
 
     A read-only file (a built or archived report), or any file in a read-only folder or an
     archived revision folder, is never replaced (ExistsError, also when run as root); a path
@@ -894,8 +1015,14 @@ def write_output(path: str | Path, data: bytes, *, mode: int = 0o644) -> None:
     """
     import tempfile
 
+    from .outputs import refuse_foreign_file, refuse_inside_archive, refuse_special
+
     final = Path(path)
     folder = final.parent
+    refuse_special(final)
+    refuse_inside_archive(final, what or "this output")
+    if final.exists() and not is_read_only(final):
+        refuse_foreign_file(final)
     if final.exists() and is_read_only(final):
         raise ExistsError(
             f"{final} is read-only (a built or archived report?); it is never overwritten — choose another file"

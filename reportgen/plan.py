@@ -738,13 +738,17 @@ def write_plan(
     pdf: bool = True,
     advice: dict[str, Any] | None = None,
     progress: Callable[[str], None] | None = None,
+    folder: str | Path | None = None,
 ) -> Path:
     """Write the plan folder ``<output_dir>/<study-id>/plan`` atomically; refuse to overwrite.
 
     Everything is rendered into a temporary sibling folder first; only when every file is
     written is the folder renamed into place.  Raises ExistsError when a plan is already there.
     """
-    final = plan_folder(study, output_dir)
+    from .outputs import refuse_inside_archive
+
+    final = Path(folder) if folder is not None else plan_folder(study, output_dir)
+    refuse_inside_archive(final, "a plan")
     if final.exists():
         raise ExistsError(
             f"{final}: a plan already exists; it is kept. Remove it or choose another --output folder."

@@ -115,6 +115,7 @@ def sign_report(
             f"{out} already exists; a signed report is never overwritten — choose another -o"
         )
     signer = _load_signer(Path(key), passphrase)
+    refuse_not_genuine(src)
     data = src.read_bytes()
     try:
         writer = IncrementalPdfFileWriter(io.BytesIO(data), strict=False)
@@ -126,6 +127,22 @@ def sign_report(
         raise InputError.single(src, f"cannot be signed: {type(exc).__name__}: {exc}") from None
     write_output(out, signed.getvalue())
     return out
+
+
+def refuse_not_genuine(src: Path) -> None:
+    """Raise InputError when ``verify`` calls the report NOT GENUINE: it is never signed."""
+    from .verify import verify_report
+
+    v = verify_report(src)
+    if not v.ok:
+        failed = ", ".join(dict.fromkeys(f.check for f in v.failures()))
+        first = v.failures()[0]
+        raise InputError.single(
+            src,
+            f"verify calls this report NOT GENUINE (failed: {failed}: {first.message}); "
+            "it is not signed",
+            hint="run `reportgen verify` on it for every finding; sign only the report as built",
+        )
 
 
 def _field_names(data: bytes) -> list[str]:

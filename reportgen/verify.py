@@ -11,7 +11,14 @@ reference file) and ``results.json``.  ``verify_report`` checks, in order:
 5. **recomputation** — the attached inputs, analysed and judged by the installed reportgen,
    give results.json again (every number equal, or within 1e-12);
 6. **printed figures** — the main figures of results.json appear in the report's text as the
-   report formats them (the verdict, and each headline figure with its interval).
+   report formats them (the verdict, and each headline figure with its interval);
+7. **document** — the report is rebuilt from its attachments and its build record
+   (``build-record.json``: build time, state, software versions) with the build pipeline, and the
+   original revision of the file is compared with the rebuild byte for byte (page text and
+   annotations, difference by difference, when other software versions built it), see
+   :mod:`reportgen.rebuild`;
+8. **appended** — nothing follows the report as built, except signature updates that a signature
+   covers (a signed report).
 
 Every failed check says what it found in words; :func:`verify_report` returns the findings
 and the command exits 1 when any failed.  A changed byte in an attachment fails 4 (and 5); a
@@ -21,6 +28,7 @@ report whose attachments were swapped for another study's fails 3.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import math
@@ -28,7 +36,7 @@ import posixpath
 import re
 import tempfile
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 from typing import Any
@@ -36,6 +44,8 @@ from typing import Any
 from .errors import InputError
 
 TOLERANCE = 1e-12
+#: attachments ``build`` makes (not inputs): covered by the rebuild, not by the printed SHA-256 list
+GENERATED_ATTACHMENTS = frozenset({"results.json", "build-record.json"})
 #: the line every DRAFT report carries on its first page (templates/report.html)
 DRAFT_MARK = "DRAFT — built with --replace; not a released revision"
 #: measure keys the report prints as percentages (the report's own convention, templates/_macros.html)
@@ -78,6 +88,7 @@ class Verification:
     findings: list[Finding] = field(default_factory=list)
     seconds: float = 0.0
     draft: bool = False  # the report says it is a DRAFT (built with --replace)
+    notes: list[str] = field(default_factory=list)  # worth saying, but not a failed check
 
     @property
     def ok(self) -> bool:
@@ -102,6 +113,7 @@ class Verification:
         for f in self.findings:
             lines.append(f"  {'ok  ' if f.ok else 'FAIL'}  {f.check}: {f.message}")
             lines += [f"          {d}" for d in f.details]
+        lines += [f"  note  {n}" for n in self.notes]
         return "\n".join(lines) + "\n"
 
     def as_dict(self) -> dict[str, Any]:
@@ -114,6 +126,7 @@ class Verification:
                 {"check": f.check, "ok": f.ok, "message": f.message, "details": list(f.details)}
                 for f in self.findings
             ],
+            "notes": list(self.notes),
             "seconds": self.seconds,
         }
 
@@ -304,24 +317,24 @@ def _replace_value(text: str, parsed: Any, role: str, old: str, new: str) -> str
     return text[:at] + new + text[at + len(old) :]
 
 
-def recompute(
-    attachments: dict[str, bytes], study_name: str, *, progress: Callable[[str], None] | None = None
-) -> tuple[dict[str, Any], Any]:
-    """Write the attachments into a temporary folder, load, analyse and judge them.
+@contextlib.contextmanager
+def materialise(
+    attachments: dict[str, bytes], study_name: str, *, templates: dict[str, str] | None = None
+) -> Iterator[tuple[Path, dict[str, bytes]]]:
+    """Write the attachments into a temporary folder laid out as the study definition names them.
 
-    Returns (results, study).  Raises InputError naming the attachment when the inputs
-    cannot be loaded; ``ValueError`` with a sentence when an input the study names is missing.
+    Yields (path of the study definition, the original bytes of each input by role: study,
+    ratings, reference, key).  ``templates`` (name -> text, from the build record) fills the
+    company template folder.  Raises ``ValueError`` with a sentence when an input the study names
+    is missing or named by a path that cannot be followed.
     """
-    from .analysis import analyse
-    from .ratings import load_ratings
-    from .study import load_study
     from .yamlio import parse_yaml
 
-    say = progress or (lambda _m: None)
     text = attachments[study_name].decode("utf-8-sig", errors="strict")
     parsed = parse_yaml(text, shown=f"attachment {study_name}")
     doc = parsed.data
     inputs = _relative_inputs(doc)
+    sources: dict[str, bytes] = {"study": attachments[study_name]}
     # the inputs may lie above the study's folder (``../data/ratings.csv``): the study definition
     # is placed deep enough in the temporary folder that every such path stays inside it
     up = 0
@@ -350,7 +363,15 @@ def recompute(
                 )
             target.parent.mkdir(parents=True, exist_ok=True)
             if role == "templates":
-                target.mkdir(parents=True, exist_ok=True)  # templates do not change a figure
+                target.mkdir(parents=True, exist_ok=True)
+                for name, body in sorted((templates or {}).items()):
+                    t = Path(posixpath.normpath(target / name))
+                    if not t.is_relative_to(target):
+                        raise ValueError(
+                            f"the build record names a template outside its folder ({name!r})"
+                        )
+                    t.parent.mkdir(parents=True, exist_ok=True)
+                    t.write_text(body, encoding="utf-8")
                 continue
             name = by_role.get(role)
             if name not in attachments:
@@ -360,19 +381,30 @@ def recompute(
                     f"the {role} file {rel!r} that the study definition names is not attached"
                 )
             target.write_bytes(attachments[name])
+            sources[role] = attachments[name]
         study_path.write_text(text, encoding="utf-8")
+        yield study_path, sources
+
+
+def recompute(
+    attachments: dict[str, bytes], study_name: str, *, progress: Callable[[str], None] | None = None
+) -> tuple[dict[str, Any], Any]:
+    """Write the attachments into a temporary folder, load, analyse and judge them.
+
+    Returns (results, study).  Raises InputError naming the attachment when the inputs
+    cannot be loaded; ``ValueError`` with a sentence when an input the study names is missing.
+    """
+    from .ratings import load_ratings
+    from .render.build import compute_results
+    from .study import load_study
+
+    say = progress or (lambda _m: None)
+    with materialise(attachments, study_name) as (study_path, _sources):
         say("loading the attached inputs")
         study = load_study(study_path)
         ratings = load_ratings(study)
         say("recomputing")
-        results = analyse(study, ratings)
-        try:
-            from .verdict import judge
-        except ImportError:  # pragma: no cover
-            return results, study
-        results = dict(results)
-        results.update(judge(study, results))
-        return results, study
+        return compute_results(study, ratings), study
 
 
 # --------------------------------------------------------------------------- printed figures
@@ -444,6 +476,13 @@ def verify_report(
     flat, squashed = _flat(text), _squash(text)
     report_id, report_rev = _identity_from_report(meta, flat)
     v.study_id, v.revision = report_id, report_rev
+    if report_id is not None and not re.fullmatch(
+        re.escape(f"{report_id}-rev{report_rev}") + r"(?:[-_. ].*)?\.pdf", path.name, re.IGNORECASE
+    ):
+        v.notes.append(
+            f"the file name {path.name} does not match the study it holds ({report_id} revision "
+            f"{report_rev}, built as {report_id}-rev{report_rev}.pdf)"
+        )
     v.draft = DRAFT_MARK in flat
 
     # 1. signature
@@ -488,7 +527,7 @@ def verify_report(
             "the study definition (.yaml)" if not study_names else "a single study definition"
         )
     hashes = printed_hashes(text)
-    input_names = sorted(n for n in attachments if n != "results.json")
+    input_names = sorted(n for n in attachments if n not in GENERATED_ATTACHMENTS)
     if missing:
         v.add(
             "attachments",
@@ -535,12 +574,47 @@ def verify_report(
     # 4. input hashes
     _check_hashes(v, attachments, input_names, text, hashes)
 
-    # 5. recomputation
+    # 5. recomputation (from the rebuild when the PDF carries its build record) and
+    # 7. the whole document: the original revision against a rebuild, and what was appended
     from . import __version__
+    from .buildrecord import RECORD_NAME, STATE_KEY, parse_record
 
     built_with = meta.get("/Creator", "")
+    record = None
+    record_problem = None
+    if RECORD_NAME not in attachments:
+        record_problem = (
+            f"the PDF carries no build record ({RECORD_NAME}): it was stripped, or the report was "
+            "built by a reportgen older than 0.2; the document cannot be rebuilt and compared"
+        )
+    else:
+        try:
+            record = parse_record(attachments[RECORD_NAME])
+        except ValueError as exc:
+            record_problem = f"edited build record: {exc}"
+    if record is not None:
+        v.draft = record.draft
+        state = meta.get("/" + STATE_KEY)
+        if state != record.state:
+            record_problem = (
+                f"the PDF's document information says the state is {state or '(none)'}, its build "
+                f"record says {record.state}"
+            )
+    rebuilt = None
     try:
-        recomputed, _study = recompute(attachments, study_names[0], progress=say)
+        if record is not None:
+            from .errors import RenderError
+            from .rebuild import rebuild_report
+
+            try:
+                rebuilt = rebuild_report(attachments, study_names[0], record, progress=say)
+            except RenderError as exc:
+                record_problem = f"the report cannot be rebuilt from its attachments: {exc}"
+            recomputed = rebuilt.results if rebuilt is not None else None
+            if rebuilt is None:
+                recomputed, _study = recompute(attachments, study_names[0], progress=say)
+        else:
+            recomputed, _study = recompute(attachments, study_names[0], progress=say)
     except InputError as exc:
         v.add(
             "recompute",
@@ -611,6 +685,8 @@ def verify_report(
             True,
             f"the verdict and {len(figures)} headline figures appear in the report as results.json gives them",
         )
+
+    _check_document(v, data, record, rebuilt, record_problem, signed=has_signature(data))
     return _done(v, t0)
 
 
@@ -653,6 +729,71 @@ def _check_hashes(
         v.add(
             "hashes", True, f"{len(names)} attached input(s) have the SHA-256 printed in the report"
         )
+
+
+def _check_document(
+    v: Verification,
+    data: bytes,
+    record: Any,
+    rebuilt: Any,
+    problem: str | None,
+    *,
+    signed: bool,
+) -> None:
+    """The ``document`` check: the original revision against the rebuild; what was appended."""
+    from .rebuild import appended_problems, compare_pages, original_end
+
+    end = original_end(data)
+    wrong: list[str] = []
+    if problem is not None:
+        v.add("document", False, problem)
+    elif rebuilt is not None:
+        original = data[:end]
+        if rebuilt.pdf == original:
+            v.add(
+                "document",
+                True,
+                f"rebuilt from its attachments and build record: the {end:,} bytes of the report as "
+                "built are identical to the rebuild",
+            )
+        else:
+            from .render.context import _versions
+
+            same_software = record.software == _versions()
+            wrong = compare_pages(original, rebuilt.pdf)
+            if not wrong and not same_software:
+                theirs = ", ".join(f"{s.get('name')} {s.get('version')}" for s in record.software)
+                v.add(
+                    "document",
+                    True,
+                    "rebuilt from its attachments and build record with other software versions "
+                    f"than the report's ({theirs}): the bytes differ, but the text and annotations "
+                    "of every page agree",
+                )
+            else:
+                if not wrong:
+                    wrong = [
+                        "the text of every page agrees, but other content (charts, images, fonts, "
+                        "attachments or metadata) differs from the rebuild by the same software"
+                    ]
+                v.add(
+                    "document",
+                    False,
+                    "edited report: the report as built is not what its attachments build "
+                    f"({len(wrong)} difference(s))",
+                    wrong[:12],
+                )
+    appended = appended_problems(data, end, signed=signed)
+    if appended:
+        v.add(
+            "appended",
+            False,
+            "content was added to the report after it was built"
+            + (" that no signature covers" if signed else ""),
+            appended[:8],
+        )
+    elif len(data) > end and signed:
+        v.add("appended", True, "only signature updates follow the report as built")
 
 
 def _done(v: Verification, t0: float) -> Verification:

@@ -8,10 +8,13 @@ register tests; they are not computed from the ratings (verify's tests use real 
 
 from __future__ import annotations
 
+import hashlib
 import io
 import json
 from pathlib import Path
 from typing import Any
+
+from reportgen.buildrecord import BuildRecord, manifest_bytes
 
 
 def record(est: float, half: float = 0.05, items: int = 30) -> dict[str, Any]:
@@ -75,12 +78,12 @@ def _end_of_month_after(date: str, months: int) -> str:
     return dt.date(d.year + y, m + 1, calendar.monthrange(d.year + y, m + 1)[1]).isoformat()
 
 
-def make_pdf(attachments: dict[str, bytes], text: str = "") -> bytes:
+def make_pdf(attachments: dict[str, bytes], text: str = "", state: str | None = None) -> bytes:
     import pypdf
 
     w = pypdf.PdfWriter()
     w.add_blank_page(595, 842)
-    w.add_metadata({"/Title": text or "test report"})
+    w.add_metadata({"/Title": text or "test report", **({"/ReportState": state} if state else {})})
     for name, data in attachments.items():
         w.add_attachment(name, data)
     buf = io.BytesIO()
@@ -104,6 +107,7 @@ def make_revision(
     verdict: str = "PASS",
     valid_months: int = 12,
     big_file_bytes: int = 0,
+    state: str = "release",
 ) -> Path:
     raters = raters or {"I1": "Ana Ruiz", "I2": "Ben Okafor"}
     certified = certified if certified is not None else {r: True for r in raters}
@@ -174,19 +178,34 @@ def make_revision(
     (folder / f"{study_id}-rev{revision}.html").write_text(
         f"<html><body>{study_id}</body></html>\n"
     )
-    (folder / f"{study_id}-rev{revision}.pdf").write_bytes(
-        make_pdf(
-            {
-                "study.yaml": yaml_text.encode(),
-                "ratings.csv": ratings.encode(),
-                "reference.csv": reference.encode(),
-                "results.json": results_bytes,
-            },
-            f"{study_id} rev{revision}",
-        )
-    )
     (folder / "charts").mkdir()
     (folder / "charts" / "agreement.svg").write_text("<svg xmlns='http://www.w3.org/2000/svg'/>\n")
     if big_file_bytes:
         (folder / "charts" / "zz-big.bin").write_bytes(b"\0" * big_file_bytes)
+    # what build writes beside the PDF: its SHA-256 in the PDF's build record, then SHA256SUMS
+    side = {
+        p.relative_to(folder).as_posix(): p.read_bytes()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
+    build_record = BuildRecord(
+        state=state,
+        generated_at="2026-03-01T12:00:00Z",
+        software=[{"name": "reportgen", "version": "test"}],
+        files={n: hashlib.sha256(d).hexdigest() for n, d in side.items()},
+    ).to_bytes()
+    pdf = make_pdf(
+        {
+            "study.yaml": yaml_text.encode(),
+            "ratings.csv": ratings.encode(),
+            "reference.csv": reference.encode(),
+            "results.json": results_bytes,
+            "build-record.json": build_record,
+        },
+        f"{study_id} rev{revision}",
+        state=state,
+    )
+    (folder / f"{study_id}-rev{revision}.pdf").write_bytes(pdf)
+    side[f"{study_id}-rev{revision}.pdf"] = pdf
+    (folder / "SHA256SUMS").write_bytes(manifest_bytes(side))
     return folder

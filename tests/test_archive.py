@@ -108,6 +108,7 @@ def test_archive_copies_read_only_and_indexes(tmp_path: Path) -> None:
         "SEAL-CHECK-rev1.pdf",
         "SEAL-CHECK-rev1.html",
         "charts/agreement.svg",
+        "SHA256SUMS",
     }
     assert set(row.inputs) == {"study.yaml", "ratings.csv", "reference.csv"}
     assert len(row.items) == 30
@@ -119,8 +120,13 @@ def test_never_overwrites_and_new_revision_supersedes(tmp_path: Path) -> None:
     archive_revision(rev1, archive_dir=root, now=NOW)
     before = (root / "SEAL-CHECK" / "rev1" / "results.json").read_bytes()
 
+    # the very same files again (a re-run): nothing to do, the archived entry is returned
+    again = archive_revision(rev1, archive_dir=root, now=NOW + dt.timedelta(days=1))
+    assert again.archived_at == "2026-03-01T12:00:00Z"
+    # another build of the same revision is refused
+    other = make_revision(tmp_path / "other", "SEAL-CHECK", 1, kappa=0.5)
     with pytest.raises(ExistsError, match="already archived"):
-        archive_revision(rev1, archive_dir=root, now=NOW)
+        archive_revision(other, archive_dir=root, now=NOW)
     assert (root / "SEAL-CHECK" / "rev1" / "results.json").read_bytes() == before
     assert not [p for p in (root / "SEAL-CHECK").iterdir() if p.name.startswith(".")]
 
@@ -131,7 +137,7 @@ def test_never_overwrites_and_new_revision_supersedes(tmp_path: Path) -> None:
         for e in list_entries(root)
     ] == [(1, 0.8), (2, 0.7)]
     # the CLI reports the refusal with exit code 5
-    r = _run("archive", str(rev2), "--archive", str(root))
+    r = _run("archive", str(other), "--archive", str(root))
     assert r.returncode == 5, r.stderr
     assert "already archived" in r.stderr
 
@@ -163,7 +169,8 @@ def test_archive_location(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> No
         resolve_archive_dir(tmp_path / "given", revision_dir=rev) == (tmp_path / "given").resolve()
     )
     monkeypatch.delenv("REPORTGEN_ARCHIVE")
-    r = _run("archive", str(rev), "--quiet", env={"REPORTGEN_ARCHIVE": ""})
+    # the command line's rule (reportgen/places.py): no archive found upwards -> ./archive
+    r = _run("archive", str(rev), "--quiet", env={"REPORTGEN_ARCHIVE": ""}, cwd=rev.parents[2])
     assert r.returncode == 0, r.stderr
     assert _rows(tmp_path / "project" / "archive") == [("SEAL-CHECK", 1)]
 
@@ -247,8 +254,9 @@ def test_kill_between_rename_and_commit_is_rolled_forward(tmp_path: Path) -> Non
     r = _run("archive", str(other), "--archive", str(root))
     assert r.returncode == 0, r.stderr
     assert _rows(root) == [("CRIMP-CHECK", 1), ("SEAL-CHECK", 1)]
-    r = _run("archive", str(rev), "--archive", str(root))
-    assert r.returncode == 5 and "already archived" in r.stderr
+    r = _run("archive", str(rev), "--archive", str(root))  # re-run: the work is complete
+    assert r.returncode == 0, r.stderr
+    assert "archived SEAL-CHECK rev1 (PASS, 5 files)" in r.stdout
 
 
 def test_a_changed_folder_is_not_rolled_forward(tmp_path: Path) -> None:
@@ -320,9 +328,6 @@ def test_same_revision_archived_twice_at_once_one_wins(tmp_path: Path) -> None:
 
 
 def test_drafts_are_not_archived(tmp_path: Path) -> None:
-    rev = make_revision(tmp_path / "output")
-    (rev / "SEAL-CHECK-rev1.html").write_text(
-        '<html><body class="draft"><p>DRAFT</p></body></html>'
-    )
+    rev = make_revision(tmp_path / "output", state="draft")
     with pytest.raises(InputError, match="drafts are not archived"):
         archive_revision(rev, archive_dir=tmp_path / "archive")

@@ -54,9 +54,9 @@ def test_write_output_never_replaces_a_read_only_file(tmp_path: Path) -> None:
 
 def test_write_output_never_writes_into_an_archived_revision(archived: Path) -> None:
     before = _snapshot(archived)
-    with pytest.raises(ExistsError, match="read-only folder"):
+    with pytest.raises(ExistsError, match="is inside the archive"):
         write_output(archived / "history.html", b"<html></html>")
-    with pytest.raises(ExistsError, match="is read-only"):
+    with pytest.raises(ExistsError, match="is inside the archive"):
         write_output(archived / "SEAL-CHECK-rev1.html", b"<html></html>")
     assert _snapshot(archived) == before
 
@@ -77,9 +77,9 @@ def test_history_output_into_the_archive_exits_5(archived: Path, run_cli) -> Non
     root = archived.parent.parent
     before = _snapshot(archived)
     code, _, err = run_cli("history", "--archive", root, "-o", archived / "SEAL-CHECK-rev1.html")
-    assert code == 5 and "is read-only" in err
+    assert code == 5 and "is inside the archive" in err
     code, _, err = run_cli("register", "--archive", root, "-q", "--csv", archived / "register.csv")
-    assert code == 5 and "read-only folder" in err
+    assert code == 5 and "is inside the archive" in err
     assert _snapshot(archived) == before
 
 

@@ -50,7 +50,7 @@ def test_genuine_report(report_a: Path) -> None:
     assert (v.study_id, v.revision) == ("LUG-CHECK", 1)
     assert checks["attachments"] == (
         True,
-        "ratings.csv, reference.csv, results.json, study.yaml",
+        "build-record.json, ratings.csv, reference.csv, results.json, study.yaml",
         (),
     )
     assert checks["identity"][1] == "the attachments are of LUG-CHECK rev1, as the report says"
@@ -183,6 +183,7 @@ def test_report_with_another_studys_data(report_a: Path, report_b: Path, tmp_pat
         "identity",
         "hashes",
         "printed",
+        "document",  # and the rebuild from B's attachments is not A's document
     ]
 
 

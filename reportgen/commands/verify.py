@@ -7,11 +7,11 @@ from pathlib import Path
 
 import click
 
-from . import progress_printer
+from . import archive_option, json_option, progress_printer, quiet_option
 
 
 @click.command("verify")
-@click.argument("report", type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("report", type=click.Path(path_type=Path, dir_okay=False), required=False)
 @click.option(
     "--trust",
     type=click.Path(path_type=Path, dir_okay=False, exists=True),
@@ -19,9 +19,19 @@ from . import progress_printer
     help="A certificate (PEM or DER) trusted to sign reports; repeatable. With it, a signature "
     "by anyone else fails.",
 )
-@click.option("--json", "as_json", is_flag=True, help="Print the findings as JSON.")
-@click.option("-q", "--quiet", is_flag=True, help="Print only failures.")
-def command(report: Path, trust: tuple[Path, ...], as_json: bool, quiet: bool) -> None:
+@archive_option(
+    help="Also re-check every file of this archive against the SHA-256 of its index, and say "
+    "whether REPORT is archived there. REPORT may then be left out.",
+)
+@json_option("the findings")
+@quiet_option()
+def command(
+    report: Path | None,
+    trust: tuple[Path, ...],
+    archive_dir: Path | None,
+    as_json: bool,
+    quiet: bool,
+) -> None:
     """Check a report PDF: its signature (if signed), its attachments, the SHA-256 of its inputs,
     a recomputation of every figure with this reportgen, and the figures it prints.
 
@@ -30,12 +40,35 @@ def command(report: Path, trust: tuple[Path, ...], as_json: bool, quiet: bool) -
     from ..errors import CheckFailed
     from ..verify import verify_report
 
+    if report is None and archive_dir is None:
+        raise click.UsageError("give the REPORT to check, or --archive DIR, or both")
+    archive_ok = True
+    if archive_dir is not None:
+        from ..archive import resolve_archive_dir
+        from ..archivecheck import archive_summary
+
+        archive_ok, lines = archive_summary(resolve_archive_dir(archive_dir), report)
+        if not as_json and (not quiet or not archive_ok):
+            click.echo("\n".join(lines))
+        if report is None:
+            if not archive_ok:
+                raise CheckFailed("the archive is not intact: see the files listed above")
+            return
+    assert report is not None
     progress = progress_printer(quiet or as_json)
     result = verify_report(report, trust=trust, progress=progress)
     if as_json:
         click.echo(json.dumps(result.as_dict(), indent=2))
-    elif not quiet or not result.ok:
+    elif not quiet:
         click.echo(result.format(), nl=False)
+    elif not result.ok:  # only the problems: the failed checks, no "ok" lines
+        lines = [f"{report}: NOT GENUINE"]
+        for f in result.failures():
+            lines.append(f"  FAIL  {f.check}: {f.message}")
+            lines += [f"          {d}" for d in f.details]
+        click.echo("\n".join(lines))
+    if not archive_ok and result.ok:
+        raise CheckFailed("the archive is not intact: see the files listed above")
     if not result.ok:
         if as_json:  # the findings above are the whole JSON answer
             raise click.exceptions.Exit(1)

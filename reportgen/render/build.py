@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime as dt
+import hashlib
 import json
 import os
 import shutil
@@ -45,9 +46,18 @@ class RenderedReport:
         return f"{self.study_id}-rev{self.revision}"
 
     def files(self) -> dict[str, bytes]:
-        out = {f"{self.stem}.html": self.html, "results.json": self.results_json}
+        """Every file of the revision folder, with the SHA-256 manifest of the others."""
+        from ..buildrecord import MANIFEST_NAME, manifest_bytes
+
+        out = self.side_files()
         if self.pdf is not None:
             out[f"{self.stem}.pdf"] = self.pdf
+        out[MANIFEST_NAME] = manifest_bytes(out)
+        return out
+
+    def side_files(self) -> dict[str, bytes]:
+        """The files written beside the PDF (their SHA-256 are in the PDF's build record)."""
+        out = {f"{self.stem}.html": self.html, "results.json": self.results_json}
         out.update(self.charts)
         return out
 
@@ -100,8 +110,19 @@ def compute_results(
     return results
 
 
-def _attachments(study: Study, ratings: Ratings | None, results_json: bytes) -> list[Any]:
+def _attachments(
+    study: Study,
+    ratings: Ratings | None,
+    results_json: bytes,
+    record: bytes | None = None,
+    sources: Mapping[str, bytes] | None = None,
+) -> list[Any]:
+    """The PDF's attachments.  ``sources`` (role -> bytes: study, ratings, reference, key) gives
+    the inputs' bytes instead of reading the files (``verify`` rebuilds from the attached copies)."""
+    from ..buildrecord import RECORD_NAME
     from .pdf import PdfAttachment
+
+    given = dict(sources or {})
 
     atts = []
     seen: set[str] = set()
@@ -115,13 +136,15 @@ def _attachments(study: Study, ratings: Ratings | None, results_json: bytes) -> 
         seen.add(name)
         atts.append(PdfAttachment(name, data, desc, rel))
 
-    add(study.path.name, study.path.read_bytes(), "Study definition", "Source")
+    add(
+        study.path.name, given.get("study") or study.path.read_bytes(), "Study definition", "Source"
+    )
     what = {"ratings": "Ratings file", "reference": "Reference file", "key": "Plan key file"}
     for s in ratings.sources if ratings else ():
         if s.role in what:
             add(
                 s.path.name,
-                s.path.read_bytes(),
+                given.get(s.role) or s.path.read_bytes(),
                 f"{what[s.role]} as read (SHA-256 {s.sha256})",
                 "Data",
             )
@@ -131,6 +154,8 @@ def _attachments(study: Study, ratings: Ratings | None, results_json: bytes) -> 
         "Every figure of the report (schema reportgen-results/1)",
         "Supplement",
     )
+    if record is not None:
+        add(RECORD_NAME, record, "How the report was built: state, time, software", "Supplement")
     return atts
 
 
@@ -144,13 +169,18 @@ def render_report(
     pdf: bool = True,
     progress: Progress | None = None,
     plan: Mapping[str, Any] | None = None,
+    software: list[dict[str, str]] | None = None,
+    sources: Mapping[str, bytes] | None = None,
 ) -> RenderedReport:
     """Render charts, HTML and PDF in memory from already computed (and judged) results.
 
     ``plan`` is the study's plan summary (see :func:`find_plan`), shown in the design section.
+    ``software`` (the versions the report prints) and ``sources`` (the inputs' bytes to attach)
+    are given by ``verify`` when it rebuilds a report from its build record.
     """
+    from ..buildrecord import STATE_DRAFT, STATE_KEY, STATE_RELEASE, BuildRecord, company_templates
     from .charts import report_charts
-    from .context import build_context, rater_dicts, verdict_view
+    from .context import _versions, build_context, rater_dicts, verdict_view
     from .html import check_glyphs, render_html
 
     say = progress or (lambda _m: None)
@@ -161,13 +191,37 @@ def render_report(
     charts = report_charts(study, ratings, dict(results), verdict_view(results, rater_dicts(study)))
     timings["charts"] = time.perf_counter() - t0
     t0 = time.perf_counter()
+    software = list(software) if software is not None else _versions()
     ctx = build_context(
-        study, ratings, results, generated_at=generated_at, draft=draft, charts=charts, plan=plan
+        study,
+        ratings,
+        results,
+        generated_at=generated_at,
+        draft=draft,
+        charts=charts,
+        plan=plan,
+        software=software,
     )
     say("HTML")
     rendered = render_html(ctx, override_dir=study.templates_path)
     timings["html"] = time.perf_counter() - t0
     rjson = results_bytes(results)
+    state = STATE_DRAFT if draft else STATE_RELEASE
+    html_bytes = rendered.html.encode("utf-8")
+    chart_files = {c.filename: c.svg for c in charts.values()}
+    side = {
+        f"{study.id}-rev{study.revision}.html": html_bytes,
+        "results.json": rjson,
+        **chart_files,
+    }
+    record = BuildRecord(
+        state=state,
+        generated_at=ctx.generated_at,
+        software=software,
+        plan=json.loads(json.dumps(plan)) if plan is not None else None,
+        templates=company_templates(study.templates_path),
+        files={n: hashlib.sha256(d).hexdigest() for n, d in sorted(side.items())},
+    ).to_bytes()
     pdf_bytes = None
     if pdf:
         from .pdf import render_pdf
@@ -177,16 +231,17 @@ def render_report(
         pdf_bytes = render_pdf(
             rendered.print_html,
             generated_at=generated_at,
-            attachments=_attachments(study, ratings, rjson),
+            attachments=_attachments(study, ratings, rjson, record, sources),
+            metadata={STATE_KEY: state},
         )
         timings["pdf"] = time.perf_counter() - t0
     return RenderedReport(
         study_id=study.id,
         revision=study.revision,
-        html=rendered.html.encode("utf-8"),
+        html=html_bytes,
         pdf=pdf_bytes,
         results_json=rjson,
-        charts={c.filename: c.svg for c in charts.values()},
+        charts=chart_files,
         results=dict(results),
         templates=rendered.templates,
         timings=timings,
@@ -236,9 +291,13 @@ def refuse_archive_target(target: Path) -> None:
     archived revision (``--replace``) or leave a revision folder there that the index does not know.
     """
     from ..archive import ENTRY_NAME, INDEX_NAME
+    from ..outputs import archive_containing
 
     root = target.parent.parent
-    if (target / ENTRY_NAME).exists() or (root / INDEX_NAME).exists():
+    inside = archive_containing(target)
+    if inside is not None:
+        root = inside
+    if inside is not None or (target / ENTRY_NAME).exists() or (root / INDEX_NAME).exists():
         raise ExistsError(
             f"{root} is a reportgen archive: builds are never written into it, and archived "
             "revisions are never overwritten; build into another --output folder, then run "
@@ -258,8 +317,10 @@ def refuse_foreign_files(target: Path) -> None:
 
 def foreign_files(target: Path) -> list[str]:
     """Files in an existing revision folder that ``build`` does not write (a signed copy, notes …)."""
+    from ..buildrecord import MANIFEST_NAME
+
     stem = f"{target.parent.name}-{target.name}"
-    ours = {f"{stem}.html", f"{stem}.pdf", "results.json"}
+    ours = {f"{stem}.html", f"{stem}.pdf", "results.json", MANIFEST_NAME}
     return sorted(
         p.name
         for p in target.iterdir()

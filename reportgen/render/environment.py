@@ -42,9 +42,9 @@ def make_environment(override_dir: Path | None = None) -> Any:
     loaders: list[jinja2.BaseLoader] = [jinja2.PrefixLoader({"default": builtin}, delimiter=":")]
     cls: type[jinja2.Environment] = jinja2.Environment
     if override_dir is not None:
-        loaders.append(
-            jinja2.FileSystemLoader(str(override_dir), encoding="utf-8", followlinks=False)
-        )
+        from ..templatefiles import regular_file_loader
+
+        loaders.append(regular_file_loader(Path(override_dir)))
         cls = ImmutableSandboxedEnvironment
     loaders.append(builtin)
     env = cls(

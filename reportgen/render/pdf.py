@@ -24,7 +24,7 @@ import mimetypes
 import sys
 import urllib.request
 import warnings
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -94,8 +94,13 @@ def render_pdf(
     generated_at: dt.datetime,
     attachments: Sequence[PdfAttachment] = (),
     base_url: Path | None = None,
+    metadata: Mapping[str, str] | None = None,
 ) -> bytes:
-    """Render finished HTML to PDF/A-3b bytes; raise RenderError on any refused URL or warning."""
+    """Render finished HTML to PDF/A-3b bytes; raise RenderError on any refused URL or warning.
+
+    ``metadata`` entries are written into the PDF's document information (and only they: other
+    ``<meta>`` names of the HTML are not), e.g. the report's state (see ``buildrecord.STATE_KEY``).
+    """
     import weasyprint
 
     for ext, mime in (
@@ -133,7 +138,10 @@ def render_pdf(
         with warnings.catch_warnings():
             # WeasyPrint 70 opens its sRGB profile for PDF/A and never closes it
             warnings.simplefilter("ignore", ResourceWarning)
-            pdf = doc.write_pdf(pdf_variant=PDF_VARIANT, attachments=atts)
+            doc.metadata.custom = dict(sorted((metadata or {}).items()))
+            pdf = doc.write_pdf(
+                pdf_variant=PDF_VARIANT, attachments=atts, custom_metadata=bool(metadata)
+            )
     except BaseException as exc:  # FatalURLFetchingError derives from BaseException
         if type(exc).__name__ == "FatalURLFetchingError" or fetcher.refused:
             what = ", ".join(fetcher.refused[:3]) or str(exc)

@@ -103,7 +103,13 @@ def test_fallback_embedded_in_html_only_when_needed(hostile: Built, built_binary
 
 def test_no_attachment_smuggled(hostile: Built) -> None:
     atts = pypdf.PdfReader(str(hostile.pdf_path)).attachments
-    assert sorted(atts) == ["ratings.csv", "reference.csv", "results.json", "study.yaml"]
+    assert sorted(atts) == [
+        "build-record.json",
+        "ratings.csv",
+        "reference.csv",
+        "results.json",
+        "study.yaml",
+    ]
 
 
 def test_uncovered_glyph_fails_clearly(tmp_path: Path) -> None:

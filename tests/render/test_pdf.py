@@ -39,7 +39,9 @@ def test_pdfa3b_and_attachments(built_binary: Built) -> None:
     assert "<pdfaid:conformance>B</pdfaid:conformance>" in xmp or 'pdfaid:conformance="B"' in xmp
     atts = reader.attachments
     folder = STUDIES / "seal-check"
-    assert sorted(atts) == sorted(["study.yaml", "ratings.csv", "reference.csv", "results.json"])
+    assert sorted(atts) == sorted(
+        ["study.yaml", "ratings.csv", "reference.csv", "results.json", "build-record.json"]
+    )
     for name in ("study.yaml", "ratings.csv", "reference.csv"):
         assert atts[name][0] == (folder / name).read_bytes(), name
     assert atts["results.json"][0] == (built_binary.folder / "results.json").read_bytes()
@@ -311,11 +313,12 @@ def test_build_archive(tmp_path: Path, run_cli, monkeypatch: pytest.MonkeyPatch)
     from reportgen.archive import is_read_only, list_entries
 
     monkeypatch.delenv("REPORTGEN_ARCHIVE", raising=False)
+    monkeypatch.chdir(tmp_path)
     s = small_study(tmp_path / "s")
     out = tmp_path / "out"
     code, stdout, err = run_cli("build", s, "-o", out, "--generated-at", GENERATED_AT, "--archive")
     assert code == 0, err
-    archive = tmp_path / "archive"  # the default: archive/ beside output/
+    archive = tmp_path / "archive"  # the rule: no archive here or above -> ./archive
     assert f"  archived in {archive / 'TEST-01' / 'rev1'}" in stdout.splitlines()
     (entry,) = list_entries(archive)
     assert (entry.study_id, entry.revision, entry.folder) == ("TEST-01", 1, "TEST-01/rev1")

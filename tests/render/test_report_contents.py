@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import hashlib
 import io
+import json
 import re
 from pathlib import Path
 from typing import Any
@@ -217,6 +218,7 @@ def test_key_file_attached_hashed_and_verified(keyed: Built) -> None:
     digest = hashlib.sha256(key_path.read_bytes()).hexdigest()
     atts = pypdf.PdfReader(io.BytesIO(keyed.pdf)).attachments
     assert sorted(atts) == [
+        "build-record.json",
         "key.csv",
         "ratings-entry.csv",
         "reference.csv",
@@ -231,6 +233,7 @@ def test_key_file_attached_hashed_and_verified(keyed: Built) -> None:
     checks = {f.check: f for f in v.findings}
     assert checks["hashes"].message == "4 attached input(s) have the SHA-256 printed in the report"
     assert checks["recompute"].ok and "key" not in checks["recompute"].message
+    assert checks["document"].ok  # rebuilt with the plan summary from the build record
 
 
 @pytest.mark.slow
@@ -257,9 +260,21 @@ def test_verify_names_a_stripped_key(keyed: Built, tmp_path: Path) -> None:
 DEMOS = ("built_binary", "built_ordinal", "built_nominal")
 #: attachments per demo study: defect-triage has no reference file, so it carries three
 ATTACHMENTS = {
-    "SEAL-CHECK-DEMO": ["ratings.csv", "reference.csv", "results.json", "study.yaml"],
-    "FINISH-GRADE-DEMO": ["ratings.csv", "reference.csv", "results.json", "study.yaml"],
-    "RETURNS-TRIAGE-DEMO": ["ratings.csv", "results.json", "study.yaml"],
+    "SEAL-CHECK-DEMO": [
+        "build-record.json",
+        "ratings.csv",
+        "reference.csv",
+        "results.json",
+        "study.yaml",
+    ],
+    "FINISH-GRADE-DEMO": [
+        "build-record.json",
+        "ratings.csv",
+        "reference.csv",
+        "results.json",
+        "study.yaml",
+    ],
+    "RETURNS-TRIAGE-DEMO": ["build-record.json", "ratings.csv", "results.json", "study.yaml"],
 }
 PCT = {
     "agreement",
@@ -321,6 +336,11 @@ def test_demo_pdf_must_show(which: str, request: pytest.FixtureRequest) -> None:
     assert sorted(atts) == ATTACHMENTS[study.id]
     folder = STUDIES / study.path.parent.name
     for name in atts:
+        if (
+            name == "build-record.json"
+        ):  # how it was built: state, time, software (tests/test_integrity_*)
+            assert json.loads(atts[name])["state"] == "release"
+            continue
         expected = (built.folder / name) if name == "results.json" else (folder / name)
         assert atts[name] == expected.read_bytes(), name
     # every section heading (ordered-scale agreement only on the ordinal scale)

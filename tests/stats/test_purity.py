@@ -1,4 +1,4 @@
-"""The numeric core imports only numpy at module level (STATS-API.md; issue 3)."""
+"""The numeric core imports only numpy at module level (every module, discovered)."""
 
 from __future__ import annotations
 
@@ -6,16 +6,19 @@ import json
 import subprocess
 import sys
 
-MODULES = [
-    "reportgen.stats",
-    "reportgen.stats.tables",
-    "reportgen.stats.fleiss",
-    "reportgen.stats.krippendorff",
-    "reportgen.stats.gwet",
-    "reportgen.stats.bootstrap",
-    "reportgen.stats.weights",
-    "reportgen.stats.results",
-]
+
+def _discover() -> list[str]:
+    """Every module of the stats package, found on disk (a new module is checked unasked)."""
+    import pkgutil
+
+    import reportgen.stats as pkg
+
+    return ["reportgen.stats"] + sorted(
+        f"reportgen.stats.{m.name}" for m in pkgutil.iter_modules(pkg.__path__)
+    )
+
+
+MODULES = _discover()
 FORBIDDEN = ["pandas", "jinja2", "matplotlib", "weasyprint", "scipy", "statsmodels", "sklearn"]
 
 
@@ -37,3 +40,13 @@ def test_the_check_itself_detects_a_heavy_import() -> None:
         [sys.executable, "-c", code], capture_output=True, text=True, check=True, timeout=60
     )
     assert json.loads(out.stdout) is True
+
+
+def test_discovery_finds_every_module_file() -> None:
+    from pathlib import Path
+
+    import reportgen.stats as pkg
+
+    files = {p.stem for p in Path(pkg.__file__).parent.glob("*.py") if p.stem != "__init__"}
+    assert {m.rsplit(".", 1)[1] for m in MODULES[1:]} == files
+    assert len(files) >= 13
