@@ -199,6 +199,7 @@ criteria:
   rules:
     - {measure: accuracy.*.effectiveness, pass: 0.90, marginal: 0.80, judge: estimate}
 certification:
+  source: "Robot cell 4 inspector qualification (invented for the tests)"
   valid_months: 12
   rules:
     - {measure: accuracy.effectiveness, pass: 0.90, judge: estimate}
