@@ -70,6 +70,8 @@ class Study:
     weights: Literal["linear", "quadratic"] | tuple[tuple[float, ...], ...] = "linear"
     target_half_width: float = 0.10
     safety_related: bool = False
+    #: published scale for the size words of kappa-type coefficients (reportgen.sizewords)
+    size_words: str = "landis-koch-1977"
     criteria: Any = None  # raw mapping from YAML; validated by verdict.py
     certification: Any = None  # raw mapping from YAML; validated by verdict.py
     signoff: SignOff = field(default_factory=SignOff)

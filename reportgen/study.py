@@ -37,6 +37,7 @@ TOP_KEYS = (
     "bootstrap",
     "weights",
     "target_half_width",
+    "size_words",
     "criteria",
     "certification",
     "signoff",
@@ -382,6 +383,10 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
         )
         half_width = 0.10
 
+    from .sizewords import DEFAULT_SCALE, KAPPA_SCALES
+
+    size_words = r.choice(("size_words",), KAPPA_SCALES, default=DEFAULT_SCALE)
+
     r.mapping(("signoff",), SIGNOFF_KEYS)
     signoff = SignOff(*(r.text(("signoff", k)) for k in SIGNOFF_KEYS))
     r.mapping(("report",), REPORT_KEYS)
@@ -422,6 +427,7 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
         weights=weights,
         target_half_width=half_width,
         safety_related=safety,
+        size_words=size_words or DEFAULT_SCALE,
         criteria=raw["criteria"],
         certification=raw["certification"],
         signoff=signoff,
