@@ -78,6 +78,7 @@ class Study:
     paper: Literal["A4", "letter"] = "A4"
     templates_path: Path | None = None  # study-local template override folder
     plan: Any = None  # raw mapping from YAML; used by plan.py
+    measured: Any = None  # raw measured_reference mapping; validated by measured.py
     #: YAML position of every key, e.g. ("criteria", "rules", 0, "measure") -> Location
     locations: dict[tuple[Any, ...], Location] = field(default_factory=dict, repr=False)
 

@@ -43,6 +43,7 @@ TOP_KEYS = (
     "signoff",
     "report",
     "plan",
+    "measured_reference",
 )
 STUDY_KEYS = (
     "id",
@@ -393,7 +394,7 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
     paper = r.choice(("report", "paper"), PAPERS, default="A4")
     templates = r.file(("report", "templates"), base=base, what="templates", folder=True)
 
-    raw = {k: r.get((k,)) for k in ("criteria", "certification", "plan")}
+    raw = {k: r.get((k,)) for k in ("criteria", "certification", "plan", "measured_reference")}
     raw = {k: (None if v is _ABSENT else v) for k, v in raw.items()}
 
     r.problems.items.sort(key=lambda p: (p.location.line or 0, p.location.column or 0))
@@ -434,6 +435,7 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
         paper=paper,  # type: ignore[arg-type]
         templates_path=templates,
         plan=raw["plan"],
+        measured=raw["measured_reference"],
         locations=dict(doc.locations),
     )
 

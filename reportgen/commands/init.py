@@ -143,6 +143,7 @@ size_words: landis-koch-1977    # words for kappa sizes: landis-koch-1977 | flei
 # signoff: {{prepared_by: "", reviewed_by: "", approved_by: ""}}
 # report: {{paper: A4}}          # A4 | letter
 # plan: {{seed: 7}}              # used by `reportgen plan`
+# measured_reference: {{file: values.csv, unit: mm, lower_limit: 9.98, upper_limit: 10.02}}  # item,value file; see README
 """
 
 
