@@ -103,6 +103,9 @@ def command(
 
     when = resolve_generated_at(generated_at)
     study = load_study(study_file)
+    from ..outputs import check_output_folder
+
+    check_output_folder(output)
     target = revision_dir(output, study)
     refuse_archive_target(target)
     if target.exists():
