@@ -499,6 +499,20 @@ def software_version(results: dict[str, Any]) -> str | None:
     return v if isinstance(v, str) else None
 
 
+def _built_with(pdf: Path) -> str | None:
+    """The reportgen version in the report PDF's attached build record, or None."""
+    from .buildrecord import RECORD_NAME, parse_record
+    from .verify import read_attachments
+
+    data = read_attachments(pdf).get(RECORD_NAME)
+    if data is None:
+        return None
+    try:
+        return parse_record(data).version("reportgen")
+    except ValueError:
+        return None
+
+
 # --------------------------------------------------------------------------- the index
 
 
@@ -911,7 +925,7 @@ def _archive(
         item_set_sha256=item_set_digest(items),
         files=built.files,
         inputs=built.inputs,
-        software_version=software_version(built.results),
+        software_version=software_version(built.results) or _built_with(built.pdf),
         archiver_version=__version__,
         archived_at=stamp.strftime("%Y-%m-%dT%H:%M:%SZ"),
         folder=f"{built.study_id}/rev{built.revision}",

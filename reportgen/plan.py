@@ -738,6 +738,7 @@ def write_plan(
     pdf: bool = True,
     advice: dict[str, Any] | None = None,
     progress: Callable[[str], None] | None = None,
+    folder: str | Path | None = None,
 ) -> Path:
     """Write the plan folder ``<output_dir>/<study-id>/plan`` atomically; refuse to overwrite.
 
@@ -746,7 +747,7 @@ def write_plan(
     """
     from .outputs import refuse_inside_archive
 
-    final = plan_folder(study, output_dir)
+    final = Path(folder) if folder is not None else plan_folder(study, output_dir)
     refuse_inside_archive(final, "a plan")
     if final.exists():
         raise ExistsError(

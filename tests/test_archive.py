@@ -169,7 +169,8 @@ def test_archive_location(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> No
         resolve_archive_dir(tmp_path / "given", revision_dir=rev) == (tmp_path / "given").resolve()
     )
     monkeypatch.delenv("REPORTGEN_ARCHIVE")
-    r = _run("archive", str(rev), "--quiet", env={"REPORTGEN_ARCHIVE": ""})
+    # the command line's rule (reportgen/places.py): no archive found upwards -> ./archive
+    r = _run("archive", str(rev), "--quiet", env={"REPORTGEN_ARCHIVE": ""}, cwd=rev.parents[2])
     assert r.returncode == 0, r.stderr
     assert _rows(tmp_path / "project" / "archive") == [("SEAL-CHECK", 1)]
 

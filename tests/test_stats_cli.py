@@ -124,8 +124,8 @@ def test_bad_input_as_json(study_path: Path, capsys: pytest.CaptureFixture[str])
     assert any(p["file"].endswith("ratings.csv") and p["line"] for p in problems)
 
 
-def test_progress_only_on_a_quiet_free_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
-    from reportgen.commands import show_progress  # the one progress rule every command uses
+def test_progress_everywhere_but_quiet(monkeypatch: pytest.MonkeyPatch) -> None:
+    from reportgen.commands import progress_printer, show_progress  # the one progress rule
 
     class Tty:
         def isatty(self) -> bool:
@@ -135,8 +135,11 @@ def test_progress_only_on_a_quiet_free_terminal(monkeypatch: pytest.MonkeyPatch)
     monkeypatch.delenv("CI", raising=False)
     assert show_progress(quiet=False) is True
     assert show_progress(quiet=True) is False
-    monkeypatch.setenv("CI", "true")
-    assert show_progress(quiet=False) is False
+    assert progress_printer(quiet=True) is None
+    monkeypatch.setenv("CI", "true")  # a log: stage lines with seconds, unless quiet
+    assert show_progress(quiet=False) is True
+    assert progress_printer(quiet=False) is not None
+    assert progress_printer(quiet=False, log=False) is None
 
 
 def test_command_module_imports_no_heavy_libraries() -> None:

@@ -12,7 +12,7 @@ from pathlib import Path
 import click
 
 from ..errors import ExitCode, ReportgenError
-from . import progress_printer
+from . import archive_option, json_option, progress_printer, quiet_option, study_argument
 
 
 class StrictWarnings(ReportgenError):
@@ -22,7 +22,7 @@ class StrictWarnings(ReportgenError):
 
 
 @click.command("build")
-@click.argument("study_file", type=click.Path(dir_okay=False, path_type=Path))
+@study_argument()
 @click.option(
     "-o",
     "--output",
@@ -49,34 +49,42 @@ class StrictWarnings(ReportgenError):
 @click.option(
     "--no-pdf", "no_pdf", is_flag=True, help="Write the HTML, charts and results.json only."
 )
-@click.option(
-    "--archive",
-    "archive",
-    is_flag=True,
-    help="After building, copy the revision into the archive and index it (as `reportgen archive`). "
-    "Not with --replace: drafts are not archived.",
+@archive_option(
+    type=str,  # "" (the flag alone) means: find the archive by the rule
+    is_flag=False,
+    flag_value="",
+    help="After building, copy the revision into the archive and index it (as `reportgen archive`); "
+    "DIR is optional (default: $REPORTGEN_ARCHIVE, else the nearest archive/ holding an index in "
+    "this folder or a parent, else ./archive). Not with --replace: drafts are not archived.",
 )
 @click.option(
     "--archive-dir",
-    "archive_dir",
+    "archive_dir_old",
     type=click.Path(file_okay=False, path_type=Path),
     default=None,
-    metavar="DIR",
-    help="Archive folder for --archive (default: $REPORTGEN_ARCHIVE, else archive/ beside output/).",
+    hidden=True,
+    help="Old spelling of --archive DIR.",
 )
-@click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
+@json_option("what was written (study, revision, verdict, files, archive folder)")
+@quiet_option()
 def command(
-    study_file: Path,
+    study: Path,
     output: Path,
     replace: bool,
     generated_at: str | None,
     strict: bool,
     no_pdf: bool,
-    archive: bool,
-    archive_dir: Path | None,
+    archive_dir: str | Path | None,
+    archive_dir_old: Path | None,
+    as_json: bool,
     quiet: bool,
 ) -> None:
-    """Build the report of STUDY_FILE: HTML and PDF/A-3b with charts, results.json beside them."""
+    """Build the report of STUDY: HTML and PDF/A-3b with charts, results.json beside them."""
+    if archive_dir_old is not None:
+        if archive_dir is None:
+            raise click.UsageError("--archive-dir is used only together with --archive.")
+        archive_dir = archive_dir_old
+    archive = archive_dir is not None
     if archive and replace:
         raise click.UsageError(
             "--archive cannot be used with --replace: a draft is not archived. Raise "
@@ -86,8 +94,6 @@ def command(
         raise click.UsageError(
             "--archive cannot be used with --no-pdf: the archive keeps the report PDF."
         )
-    if archive_dir is not None and not archive:
-        raise click.UsageError("--archive-dir is used only together with --archive.")
     from ..ratings import load_ratings
     from ..render.build import (
         build_report,
@@ -99,10 +105,11 @@ def command(
     from ..study import load_study
 
     start = time.perf_counter()
-    progress = progress_printer(quiet) or (lambda msg: None)
+    progress = progress_printer(quiet, log=not as_json) or (lambda msg: None)
 
     when = resolve_generated_at(generated_at)
-    study = load_study(study_file)
+    progress("reading the study")
+    study = load_study(study)
     from ..outputs import check_output_folder
 
     check_output_folder(output)
@@ -139,9 +146,11 @@ def command(
     )
     archived_in: Path | None = None
     if archive:
-        from ..archive import archive_revision, resolve_archive_dir
+        from ..archive import archive_revision
+        from ..places import archive_location, require_archive
 
-        root = resolve_archive_dir(archive_dir, revision_dir=folder)
+        root = archive_location(Path(archive_dir) if archive_dir else None)
+        require_archive(root, writing=True)
         progress("archiving")
         try:
             entry = archive_revision(folder, archive_dir=root, progress=progress)
@@ -153,9 +162,27 @@ def command(
             )
             raise
         archived_in = root / entry.folder
-    if not quiet:
-        verdict = results.get("verdict") or {}
-        outcome = verdict.get("outcome") if isinstance(verdict, dict) else verdict
+    verdict = results.get("verdict") or {}
+    outcome = verdict.get("outcome") if isinstance(verdict, dict) else verdict
+    if as_json:
+        import json
+
+        click.echo(
+            json.dumps(
+                {
+                    "study": study.id,
+                    "revision": study.revision,
+                    "verdict": outcome,
+                    "draft": replace,
+                    "folder": str(folder),
+                    "files": [str(p) for p in sorted(folder.iterdir())],
+                    "archived_in": str(archived_in) if archived_in is not None else None,
+                    "warnings": len(warnings),
+                },
+                indent=2,
+            )
+        )
+    elif not quiet:
         click.echo(
             f"{study.id} revision {study.revision}: {outcome or 'no verdict'}{' (DRAFT)' if replace else ''}"
         )

@@ -12,6 +12,8 @@ from typing import Any
 
 import click
 
+from . import json_option, quiet_option, study_argument
+
 
 def _validate_criteria(study: Any, ratings: Any) -> list[Any]:
     """Problems in the acceptance criteria, when the verdict layer is present.
@@ -58,7 +60,37 @@ def run_check(path: str | Path) -> dict[str, Any]:
     for p in problems:
         if p not in errors:
             warnings.append({"kind": "criteria", "message": p.format()})
-    return {"ok": True, "design": design_summary(study, ratings), "warnings": warnings}
+    return {
+        "ok": True,
+        "design": design_summary(study, ratings),
+        "warnings": warnings,
+        "rules": rules_summary(study),
+    }
+
+
+def _rule_count(block: Any) -> int:
+    rules = block.get("rules") if isinstance(block, dict) else None
+    return len(rules) if isinstance(rules, list) else 0
+
+
+def rules_summary(study: Any) -> str:
+    """One line: the acceptance criteria and the certification rules that were validated."""
+    crit, cert = study.criteria, study.certification
+    if isinstance(crit, dict):
+        n = _rule_count(crit)
+        source = crit.get("source")
+        part = f"criteria: {n} rule{'' if n == 1 else 's'}" + (f" from {source}" if source else "")
+    else:
+        part = "criteria: none (the report gives no verdict)"
+    if isinstance(cert, dict):
+        n = _rule_count(cert)
+        months = cert.get("valid_months")
+        part += f"; certification: {n} rule{'' if n == 1 else 's'}" + (
+            f", valid {months} months" if months else ""
+        )
+    else:
+        part += "; certification: none"
+    return part
 
 
 def _pct(n: int, d: int) -> str:
@@ -126,6 +158,8 @@ def format_design(result: dict[str, Any]) -> str:
         lines.append("notes")
         lines.extend(f"  - {n}" for n in d["notes"])
     lines.append("")
+    if result.get("rules"):
+        lines.append(result["rules"])
     if result["warnings"]:
         lines.append("warnings")
         lines.extend(f"  - {w['message']}" for w in result["warnings"])
@@ -135,11 +169,12 @@ def format_design(result: dict[str, Any]) -> str:
 
 
 @click.command("check")
-@click.argument("study", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--json", "as_json", is_flag=True, help="Print the design (or the problems) as JSON.")
+@study_argument()
+@json_option("the design (or the problems)")
 @click.option("--strict", is_flag=True, help="Exit with code 4 when there are warnings.")
+@quiet_option()
 @click.pass_context
-def command(ctx: click.Context, study: Path, as_json: bool, strict: bool) -> None:
+def command(ctx: click.Context, study: Path, as_json: bool, strict: bool, quiet: bool) -> None:
     """Read a study definition and its ratings, report every problem, print the design.
 
     Writes nothing.  Exit codes: 0 ok, 2 bad input, 4 warnings with --strict.
@@ -147,6 +182,9 @@ def command(ctx: click.Context, study: Path, as_json: bool, strict: bool) -> Non
     result = run_check(study)
     if as_json:
         click.echo(json.dumps(result, indent=2, ensure_ascii=False))
+    elif quiet:
+        for w in result["warnings"]:
+            click.echo(f"warning: {w['message']}", err=True)
     else:
         click.echo(format_design(result))
     if strict and result["warnings"]:

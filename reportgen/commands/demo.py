@@ -17,7 +17,7 @@ from typing import Any
 
 import click
 
-from . import show_progress
+from . import json_option, quiet_option, show_progress
 
 
 def _default_studies() -> Path:
@@ -141,6 +141,7 @@ def _verdict_text(verdict: Any) -> str:
 
 @click.command("demo")
 @click.option(
+    "-o",
     "--output",
     "output",
     type=click.Path(file_okay=False, path_type=Path),
@@ -155,8 +156,9 @@ def _verdict_text(verdict: Any) -> str:
     default=None,
     help="Folder holding the demo studies (one sub-folder with a study.yaml each).",
 )
-@click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
-def command(output: Path, studies: Path | None, quiet: bool) -> None:
+@json_option("one summary per study")
+@quiet_option()
+def command(output: Path, studies: Path | None, as_json: bool, quiet: bool) -> None:
     """Run the main job on every demo study: check, analyse, judge and build its report."""
     folder = studies if studies is not None else _default_studies()
     paths = find_demo_studies(folder)
@@ -164,12 +166,16 @@ def command(output: Path, studies: Path | None, quiet: bool) -> None:
         from ..errors import InputError
 
         raise InputError.single(folder, "no demo study found (expected */study.yaml)")
-    progress_lines = show_progress(quiet)
+    from . import progress_printer
+
+    progress = progress_printer(quiet) if show_progress(quiet) else None
+    infos = []
     for n, path in enumerate(paths, 1):
-        if progress_lines:
-            click.echo(f"[{n}/{len(paths)}] {path.parent.name} …", err=True)
+        if progress:
+            progress(f"[{n}/{len(paths)}] {path.parent.name}")
         info = run_demo_study(path, output=output, quiet=quiet)
-        if not quiet:
+        infos.append(info)
+        if not quiet and not as_json:
             draft = (
                 f" (DRAFT: revision {info.get('revision', '?')} was built before, so it was rebuilt "
                 "as a draft; raise study.revision or use a new --output folder for a final report)"
@@ -183,3 +189,7 @@ def command(output: Path, studies: Path | None, quiet: bool) -> None:
             )
             for written in info["written"]:
                 click.echo(f"  wrote {written}")
+    if as_json:
+        import json
+
+        click.echo(json.dumps(infos, indent=2, default=str))

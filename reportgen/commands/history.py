@@ -7,6 +7,8 @@ from pathlib import Path
 
 import click
 
+from . import archive_option, json_option, quiet_option
+
 
 def _when(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.datetime | None:
     if value is None:
@@ -21,13 +23,7 @@ def _when(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.d
 
 
 @click.command("history")
-@click.option(
-    "--archive",
-    "archive_dir",
-    type=click.Path(path_type=Path, file_okay=False),
-    default=None,
-    help="Archive folder (default: $REPORTGEN_ARCHIVE, else ./archive).",
-)
+@archive_option()
 @click.option("--characteristic", default=None, help="Only studies of this characteristic.")
 @click.option("--station", default=None, help="Only studies at this inspection station.")
 @click.option(
@@ -43,29 +39,39 @@ def _when(ctx: click.Context, param: click.Parameter, value: str | None) -> dt.d
     metavar="TIME",
     help="Time printed in the report (default: now, UTC).",
 )
+@json_option("the archived revisions and the series")
+@quiet_option()
 def command(
     archive_dir: Path | None,
     characteristic: str | None,
     station: str | None,
     output: Path | None,
     generated_at: dt.datetime | None,
+    as_json: bool,
+    quiet: bool,
 ) -> None:
     """Trend of the main figures and per-inspector figures across archived studies, with intervals,
     marking changes of the item set, and a table of every archived study with its verdict."""
-    from ..archive import resolve_archive_dir, write_output
+    from ..archive import write_output
+    from ..archivecheck import check_archive_files
     from ..errors import InputError
     from ..history import format_text, load_history, render_history_html, render_history_pdf
     from ..outputs import refuse_inside_archive, refuse_special
+    from ..places import archive_location, require_archive
 
-    root = resolve_archive_dir(archive_dir)
+    root = archive_location(archive_dir)
+    require_archive(root)
     if output is not None:
         refuse_special(output, key="--output")
         refuse_inside_archive(output, "the trend report")
     entries, series = load_history(root, characteristic=characteristic, station=station)
-    from ..archivecheck import check_archive_files
+    if as_json:
+        from ..rounds import history_json
 
-    if output is None:
+        click.echo(history_json(entries, series))
+    elif output is None and not quiet:
         click.echo(format_text(entries, series), nl=False)
+    if output is None:
         check_archive_files(root, entries)
         return
     suffix = output.suffix.lower()
@@ -82,5 +88,6 @@ def command(
     )
     data = render_history_pdf(html, generated_at=when) if suffix == ".pdf" else html.encode("utf-8")
     write_output(output, data, what="the trend report")
-    click.echo(f"wrote {output} ({len(entries)} archived revision(s), {len(series)} series)")
+    if not quiet and not as_json:
+        click.echo(f"wrote {output} ({len(entries)} archived revision(s), {len(series)} series)")
     check_archive_files(root, entries)

@@ -11,6 +11,8 @@ from pathlib import Path
 
 import click
 
+from . import json_option, quiet_option
+
 SCALES = ("binary", "nominal", "ordinal")
 DEFAULT_CATEGORIES = {
     "binary": "OK=Conforming,NC=Nonconforming",
@@ -52,10 +54,28 @@ def _q(text: str) -> str:
     return '"' + text.replace("\\", "\\\\").replace('"', '\\"') + '"'
 
 
+DIRECT_INPUTS = """\
+ratings: ratings.csv            # long layout item,rater,trial,rating (paths relative to this file)
+reference: reference.csv        # item,reference: the agreed correct category of each item
+# key: plan/key/key.csv         # optional: ratings carry coded labels, decoded with this key"""
+
+PLAN_INPUTS = """\
+ratings: plan/ratings-entry.csv # written by `reportgen plan`; fill in the rating column
+reference: items.csv            # item,reference,borderline: fill in the reference column
+key: plan/key/key.csv           # written by `reportgen plan`; keep it away from the raters"""
+
+
 def study_yaml(
-    *, study_id: str, scale: str, categories: list[tuple[str, str]], raters: list[str], trials: int
+    *,
+    study_id: str,
+    scale: str,
+    categories: list[tuple[str, str]],
+    raters: list[str],
+    trials: int,
+    plan: bool = False,
 ) -> str:
-    """The commented study definition written by ``init``."""
+    """The commented study definition written by ``init`` (``plan``: for the run-sheet path)."""
+    inputs = PLAN_INPUTS if plan else DIRECT_INPUTS
     cats = "\n".join(f"  - {{code: {_q(c)}, label: {_q(label)}}}" for c, label in categories)
     rater_lines = "\n".join(f"  - {{id: {_q(r)}, name: {_q('Name of ' + r)}}}" for r in raters)
     if scale == "binary":
@@ -67,9 +87,14 @@ def study_yaml(
     order = (
         "order matters: first = best" if scale == "ordinal" else "order is only the display order"
     )
+    first_steps = (
+        "Fill in the reference column of items.csv, then run\n"
+        "#   reportgen plan . --items items.csv      (run sheets and the key, into plan/)"
+        if plan
+        else "Fill in ratings.csv and reference.csv, then run\n#   reportgen check study.yaml"
+    )
     return f"""\
-# Study definition written by `reportgen init`.  Fill in ratings.csv and reference.csv, then run
-#   reportgen check study.yaml
+# Study definition written by `reportgen init`.  {first_steps}
 # Every key is described in the README ("Study definition reference").
 
 study:
@@ -78,7 +103,8 @@ study:
   purpose: "Why the study is run"   # optional
   characteristic: "What is judged"  # optional, e.g. surface finish
   station: "Where it is judged"     # optional, e.g. final inspection, line 3
-  revision: 1                   # whole number from 1; raise it when the study is repeated
+  revision: 1                   # whole number from 1; raise it to correct this round's report
+  # a repeated study (requalification) is a new round: reportgen plan STUDY --round next
   # date: 2026-01-31            # optional: date of the study (YYYY-MM-DD)
   safety_related: false         # true: the report carries the safety caution prominently
 
@@ -91,9 +117,7 @@ raters:                         # one entry per person; ids as used in the ratin
 {rater_lines}
 {f"trials: {trials}":<31} # blind passes of each rater over all items
 
-ratings: ratings.csv            # long layout item,rater,trial,rating (paths relative to this file)
-reference: reference.csv        # item,reference: the agreed correct category of each item
-# key: plan/key.csv             # optional: ratings carry coded labels, decoded with this key
+{inputs}
 missing: refuse                 # refuse | allow: what to do with absent ratings
 
 confidence: 0.95                # interval level, between 0.5 and 1
@@ -127,12 +151,17 @@ def ratings_template(*, items: list[str], raters: list[str], trials: int) -> str
     return "\n".join(rows) + "\n"
 
 
+def items_template(*, items: list[str]) -> str:
+    """The item list of the plan path: ids, and blank reference and borderline columns."""
+    return "\n".join(["item,reference,borderline", *(f"{i},," for i in items)]) + "\n"
+
+
 def reference_template(*, items: list[str]) -> str:
     return "\n".join(["item,reference", *(f"{i}," for i in items)]) + "\n"
 
 
 @click.command("init")
-@click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
+@click.argument("folder", metavar="STUDY", type=click.Path(file_okay=False, path_type=Path))
 @click.option(
     "--scale",
     type=click.Choice(SCALES),
@@ -153,14 +182,25 @@ def reference_template(*, items: list[str]) -> str:
     help="Blind passes per rater.",
 )
 @click.option(
-    "--items",
+    "--item-count",
     "n_items",
     type=click.IntRange(1, 100_000),
     default=30,
     show_default=True,
+    metavar="N",
     help="Number of items.",
 )
+@click.option("--items", "n_items_old", type=click.IntRange(1, 100_000), hidden=True)
 @click.option("--id", "study_id", help="Study id (default: from the folder name).")
+@click.option(
+    "--plan",
+    "plan_path",
+    is_flag=True,
+    help="Start on the run-sheet path: items.csv (ids, blank reference and borderline) instead "
+    "of blank ratings; then `reportgen plan` writes the run sheets and the key into STUDY/plan/.",
+)
+@json_option("the files written")
+@quiet_option()
 def command(
     folder: Path,
     scale: str,
@@ -168,12 +208,19 @@ def command(
     raters: str,
     trials: int,
     n_items: int,
+    n_items_old: int | None,
     study_id: str | None,
+    plan_path: bool,
+    as_json: bool,
+    quiet: bool,
 ) -> None:
-    """Start a new study in FOLDER: a commented study.yaml and blank ratings and reference CSVs.
+    """Start a new study in the folder STUDY: a commented study.yaml and blank ratings and
+    reference CSVs (with --plan: the item list for `reportgen plan`).
 
     Refuses to overwrite existing files (exit 5).
     """
+    if n_items_old is not None:
+        n_items = n_items_old
     from ..errors import ExistsError, InputError
 
     cats = _categories(categories or DEFAULT_CATEGORIES[scale], scale)
@@ -197,12 +244,20 @@ def command(
     items = [f"{i:0{width}d}" for i in range(1, n_items + 1)]
     contents = {
         "study.yaml": study_yaml(
-            study_id=study_id, scale=scale, categories=cats, raters=rater_ids, trials=trials
-        ),
-        "ratings.csv": ratings_template(items=items, raters=rater_ids, trials=trials),
-        "reference.csv": reference_template(items=items),
+            study_id=study_id,
+            scale=scale,
+            categories=cats,
+            raters=rater_ids,
+            trials=trials,
+            plan=plan_path,
+        )
     }
-    existing = [folder / name for name in FILES if (folder / name).exists()]
+    if plan_path:
+        contents["items.csv"] = items_template(items=items)
+    else:
+        contents["ratings.csv"] = ratings_template(items=items, raters=rater_ids, trials=trials)
+        contents["reference.csv"] = reference_template(items=items)
+    existing = [folder / name for name in (*FILES, "items.csv", "plan") if (folder / name).exists()]
     if existing:
         raise ExistsError(
             f"{', '.join(str(p) for p in existing)} already exist(s); init never overwrites files"
@@ -218,7 +273,7 @@ def command(
     except FileExistsError as exc:
         for p in written:
             p.unlink()
-        if str(exc.filename) not in {str(folder / name) for name in FILES}:  # mkdir met a file
+        if str(exc.filename) not in {str(folder / name) for name in contents}:  # mkdir met a file
             raise InputError.single(
                 folder, f"cannot create the folder: {exc.filename} is a file"
             ) from None
@@ -233,7 +288,21 @@ def command(
             else (exc.strerror or str(exc))
         )
         raise InputError.single(folder, f"cannot write the study here: {why}") from None
-    click.echo(
-        f"wrote {folder / 'study.yaml'}, {folder / 'ratings.csv'} ({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}"
-    )
-    click.echo(f"next: fill in the blanks, then run: reportgen check {folder / 'study.yaml'}")
+    if plan_path:
+        nxt = f"reportgen plan {folder} --items {folder / 'items.csv'}"
+        what = f"{folder / 'study.yaml'}, {folder / 'items.csv'} ({n_items} items, blank reference)"
+        advice = f"fill in the reference column of items.csv, then run: {nxt}"
+    else:
+        nxt = f"reportgen check {folder}"
+        what = (
+            f"{folder / 'study.yaml'}, {folder / 'ratings.csv'} "
+            f"({n_items * len(rater_ids) * trials} blank ratings), {folder / 'reference.csv'}"
+        )
+        advice = f"fill in the blanks, then run: {nxt}"
+    if as_json:
+        import json
+
+        click.echo(json.dumps({"written": [str(p) for p in written], "next": nxt}, indent=2))
+    elif not quiet:
+        click.echo(f"wrote {what}")
+        click.echo(f"next: {advice}")

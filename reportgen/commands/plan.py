@@ -17,11 +17,21 @@ from pathlib import Path
 
 import click
 
-from . import progress_printer
+from . import json_option, progress_printer, quiet_option, study_argument
+
+
+def in_study_folder(study: object) -> Path | None:
+    """``<study folder>/plan`` when the study's key is ``plan/key/key.csv`` there, else None."""
+    key = getattr(study, "key_path", None)
+    path = getattr(study, "path", None)
+    if key is None or path is None:
+        return None
+    folder = Path(path).resolve().parent / "plan"
+    return folder if Path(key).resolve() == folder / "key" / "key.csv" else None
 
 
 @click.command("plan")
-@click.argument("study_file", metavar="STUDY.yaml", type=click.Path(dir_okay=False, path_type=Path))
+@study_argument()
 @click.option(
     "--items",
     "items_file",
@@ -30,12 +40,13 @@ from . import progress_printer
     help="Item list: CSV with columns item,reference and optionally borderline (yes/no).",
 )
 @click.option(
+    "-o",
     "--output",
     "output",
     type=click.Path(file_okay=False, path_type=Path),
-    default=Path("output"),
-    show_default=True,
-    help="Folder under which <study-id>/plan/ is written.",
+    default=None,
+    help="Folder under which <study-id>/plan/ is written (default: the study folder's plan/ when "
+    "the study definition says key: plan/key/key.csv, else output).",
 )
 @click.option(
     "--seed",
@@ -73,12 +84,12 @@ from . import progress_printer
     show_default=True,
     help="Simulated studies per item count in the advice.",
 )
-@click.option("--json", "as_json", is_flag=True, help="Print the plan summary and advice as JSON.")
-@click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
+@json_option("the plan summary and advice")
+@quiet_option()
 def command(
-    study_file: Path,
+    study: Path,
     items_file: Path | None,
-    output: Path,
+    output: Path | None,
     seed: int | None,
     start: dt.datetime | None,
     no_pdf: bool,
@@ -98,8 +109,9 @@ def command(
     from ..plan import load_items, make_plan, plan_settings, summary_text, write_plan
     from ..study import load_study
 
+    study_file = study
     study = load_study(study_file, require_inputs=False)  # planned before the first rating
-    progress = progress_printer(quiet)
+    progress = progress_printer(quiet, log=not as_json)
     items = load_items(items_file, study) if items_file is not None else None
     settings = plan_settings(study, seed=seed, start=start.date() if start else None)
 
@@ -123,7 +135,8 @@ def command(
         folder = write_plan(
             plan,
             study,
-            output_dir=output,
+            output_dir=output or Path("output"),
+            folder=in_study_folder(study) if output is None else None,
             pdf=not no_pdf,
             advice=adv.as_dict() if adv is not None else None,
             progress=progress,

@@ -7,6 +7,8 @@ from pathlib import Path
 
 import click
 
+from . import json_option, quiet_option
+
 
 @click.command("sign")
 @click.argument("report", type=click.Path(path_type=Path, dir_okay=False))
@@ -35,6 +37,8 @@ import click
     help="Reason recorded in the signature (default: sign-off of the report).",
 )
 @click.option("--location", default=None, help="Place of signing recorded in the signature.")
+@json_option("the signed file")
+@quiet_option()
 def command(
     report: Path,
     key: Path,
@@ -42,6 +46,8 @@ def command(
     output: Path | None,
     reason: str | None,
     location: str | None,
+    as_json: bool,
+    quiet: bool,
 ) -> None:
     """Sign a report PDF (for example to sign off inspector certification).
 
@@ -69,4 +75,9 @@ def command(
         reason=reason or DEFAULT_REASON,
         location=location,
     )
-    click.echo(f"signed {report} -> {out}")
+    if as_json:
+        import json
+
+        click.echo(json.dumps({"report": str(report), "signed": str(out)}, indent=2))
+    elif not quiet:
+        click.echo(f"signed {report} -> {out}")

@@ -11,7 +11,9 @@ from typing import Any
 
 import click
 
-from . import progress_printer
+from . import json_option, progress_printer, quiet_option, study_argument
+
+DEFAULT_WIDTH = 100
 
 _NAMES = {
     "agreement": "Agreement rate",
@@ -62,23 +64,68 @@ def _counted(m: dict[str, Any] | None) -> str:
     return f"{m.get('agreeing')}/{m.get('items')}"
 
 
-def _table(rows: list[list[str]]) -> list[str]:
+_TABLE = "\x00"  # marks a table line: already fitted to the width, never re-wrapped
+
+
+def _table(rows: list[list[str]], width: int = DEFAULT_WIDTH) -> list[str]:
+    """Rows as aligned columns; a table wider than ``width`` is split into several tables of
+    the columns that fit, each repeating the first column (the rater or measure)."""
     widths = [max(len(r[c]) for r in rows) for c in range(len(rows[0]))]
+    groups: list[list[int]] = [[]]
+    used = 2 + widths[0]
+    for c in range(1, len(widths)):
+        if groups[-1] and used + 2 + widths[c] > width:
+            groups.append([])
+            used = 2 + widths[0]
+        groups[-1].append(c)
+        used += 2 + widths[c]
     out = []
-    for r in rows:
-        cells = [r[0].ljust(widths[0])] + [
-            v.rjust(w) for v, w in zip(r[1:], widths[1:], strict=True)
-        ]
-        out.append("  " + "  ".join(cells).rstrip())
+    for n, group in enumerate(groups):
+        if n:
+            out.append(_TABLE)
+        for r in rows:
+            cells = [r[0].ljust(widths[0])] + [r[c].rjust(widths[c]) for c in group]
+            out.append(_TABLE + "  " + "  ".join(cells).rstrip())
     return out
+
+
+def _fit(lines: list[str], width: int) -> str:
+    """Wrap every line but table lines to ``width``, continuing under the line's indent."""
+    import textwrap
+
+    out: list[str] = []
+    for line in lines:
+        if line.startswith(_TABLE):
+            out.append(line[1:])
+        elif len(line) <= width:
+            out.append(line)
+        else:
+            indent = " " * (len(line) - len(line.lstrip(" ")))
+            out += textwrap.wrap(
+                line,
+                width=width,
+                subsequent_indent=indent + "    ",
+                break_on_hyphens=False,
+            )
+    return "\n".join(out)
+
+
+def terminal_width() -> int:
+    """The terminal's width (``COLUMNS`` wins); 100 when the output is not a terminal."""
+    import shutil
+
+    return max(40, shutil.get_terminal_size((DEFAULT_WIDTH, 24)).columns)
 
 
 def _count(n: int, word: str) -> str:
     return f"{n} {word}" if n == 1 else f"{n} {word}s"
 
 
-def format_summary(results: dict[str, Any]) -> str:
-    """The terminal summary of a results dict (numbers rounded here, for reading only)."""
+def format_summary(results: dict[str, Any], width: int = DEFAULT_WIDTH) -> str:
+    """The terminal summary of a results dict (numbers rounded here, for reading only).
+
+    Every line fits in ``width`` columns: tables are split into column groups, text is wrapped.
+    """
     lines: list[str] = []
     st, de = results["study"], results["design"]
     level = de.get("confidence_level", 0.95)
@@ -108,7 +155,15 @@ def format_summary(results: dict[str, Any]) -> str:
     if rep:
         lines += ["", "Rater repeatability (each rater against their own other trials)"]
         rows = [
-            ["rater", "Agreeing/Items", "Agreement rate", pct, "Mixed calls", "Fleiss' kappa", pct]
+            [
+                "rater",
+                "Agreeing/Items",
+                "Agreement rate",
+                pct,
+                "Changed calls",
+                "Fleiss' kappa",
+                pct,
+            ]
         ]
         for rid, e in rep.items():
             rows.append(
@@ -122,7 +177,7 @@ def format_summary(results: dict[str, Any]) -> str:
                     _interval(e["fleiss_kappa"]),
                 ]
             )
-        lines += _table(rows)
+        lines += _table(rows, width)
 
     acc = results.get("accuracy")
     if acc:
@@ -143,11 +198,11 @@ def format_summary(results: dict[str, Any]) -> str:
         rows = [["rater"] + [_NAMES[k] for k in keys]]
         for rid, e in acc.items():
             rows.append([rid] + [_num(e[k]["estimate"]) if k in e else "–" for k in keys])
-        lines += _table(rows)
+        lines += _table(rows, width)
         rows = [["rater"] + [f"{_NAMES[k]}, {pct}" for k in keys]]
         for rid, e in acc.items():
             rows.append([rid] + [_interval(e.get(k)) for k in keys])
-        lines += _table(rows)
+        lines += _table(rows, width)
         if any("misses" in e.get("counts", {}) for e in acc.values()):
             rows = [
                 ["rater", "Misses", "of defect ratings", "False alarms", "of conforming ratings"]
@@ -163,7 +218,7 @@ def format_summary(results: dict[str, Any]) -> str:
                         str(c["conforming_reference_ratings"]),
                     ]
                 )
-            lines += _table(rows)
+            lines += _table(rows, width)
 
     rp = results.get("reproducibility")
     if rp:
@@ -180,7 +235,7 @@ def format_summary(results: dict[str, Any]) -> str:
                         _counted(m) if key == "agreement" else "–",
                     ]
                 )
-        lines += _table(rows)
+        lines += _table(rows, width)
         by_cat = rp.get("fleiss_kappa_by_category")
         if by_cat:
             lines.append(
@@ -203,7 +258,7 @@ def format_summary(results: dict[str, Any]) -> str:
                 rows.append(
                     [_NAMES[key], _num(pa[key]["estimate"]), _interval(pa[key]), _counted(pa[key])]
                 )
-        lines += _table(rows)
+        lines += _table(rows, width)
 
     od = results.get("ordinal")
     if od and od.get("accuracy"):
@@ -219,7 +274,7 @@ def format_summary(results: dict[str, Any]) -> str:
                     _interval(e["mean_offset"]),
                 ]
             )
-        lines += _table(rows)
+        lines += _table(rows, width)
     if od and od.get("reproducibility"):
         steps = od["reproducibility"]["steps_apart"]
         lines.append(
@@ -258,7 +313,7 @@ def format_summary(results: dict[str, Any]) -> str:
     if warnings:
         lines += ["", f"Warnings ({len(warnings)})"]
         lines += [f"  {w['measure']}: {w['message']}" for w in warnings]
-    return "\n".join(lines)
+    return _fit(lines, width)
 
 
 def _verdict_lines(results: dict[str, Any]) -> list[str]:
@@ -274,20 +329,37 @@ def _verdict_lines(results: dict[str, Any]) -> list[str]:
         lines.append(f"  Criteria source: {crit['source']}")
     for caution in crit.get("cautions") or []:
         lines.append(f"  Caution: {caution}")
+    cert = results.get("certification") or {}
+    names = {
+        ins.get("rater"): ins.get("name")
+        for ins in cert.get("inspectors") or []
+        if ins.get("rater") and ins.get("name") and ins.get("name") != ins.get("rater")
+    }
+
+    def who(rater: Any) -> str:
+        if not rater:
+            return ""
+        return f"{rater} ({names[rater]})" if rater in names else str(rater)
+
     for rule in verdict.get("rules") or []:
-        label = rule.get("label") or rule.get("measure")
+        label = rule.get("label") or rule.get("measure") or "rule"
+        whom = who(rule.get("rater"))
+        if whom:
+            label = f"{whom}: {label}"
+        if rule.get("category"):
+            label += f", category {rule['category']}"
         value = _num(rule.get("value"))
         level = _num(rule.get("level"))
+        basis = rule.get("judge_basis") or rule.get("judge") or "estimate"
         lines.append(
-            f"  {rule.get('outcome', ''):<8} {label}: {value} judged against {level}"
-            f" ({rule.get('judge_basis') or rule.get('judge') or 'estimate'})"
+            f"  {rule.get('outcome') or '–':<8} {label}: {value} judged against {level} ({basis})"
         )
-    cert = results.get("certification")
-    if cert and cert.get("inspectors"):
+    if cert.get("inspectors"):
         lines += ["", "Inspector certification"]
         for ins in cert["inspectors"]:
+            rater = ins.get("rater") or ins.get("id") or "–"
             until = f", valid until {ins['valid_until']}" if ins.get("valid_until") else ""
-            lines.append(f"  {ins.get('id')}: {ins.get('outcome')}{until}")
+            lines.append(f"  {who(rater)}: {ins.get('outcome') or 'no outcome'}{until}")
     actions = results.get("actions") or []
     if actions:
         lines += ["", "Next steps"]
@@ -324,15 +396,10 @@ def dumps_results(results: dict[str, Any]) -> str:
 
 
 @click.command("stats")
-@click.argument("study_path", metavar="STUDY.yaml", type=click.Path(dir_okay=False))
-@click.option(
-    "--json",
-    "as_json",
-    is_flag=True,
-    help="Print the full results as JSON (schema reportgen-results/1).",
-)
-@click.option("--quiet", "-q", is_flag=True, help="No progress messages.")
-def command(study_path: str, as_json: bool, quiet: bool) -> None:
+@study_argument()
+@json_option("the full results (schema reportgen-results/1)")
+@quiet_option()
+def command(study: str, as_json: bool, quiet: bool) -> None:
     """Compute every agreement figure of a study and print a summary (or the JSON results)."""
     import gc
 
@@ -344,12 +411,15 @@ def command(study_path: str, as_json: bool, quiet: bool) -> None:
     from ..study import load_study
     from ..verdict import judge
 
-    progress = progress_printer(quiet)
-    study = load_study(study_path)
-    ratings = load_ratings(study)
-    results = analyse(study, ratings, progress=progress)
-    results.update(judge(study, results))
+    progress = progress_printer(quiet, log=not as_json)
+    loaded = load_study(study)
+    ratings = load_ratings(loaded)
+    results = analyse(loaded, ratings, progress=progress)
+    results.update(judge(loaded, results))
     if as_json:
         click.echo(dumps_results(results))
+    elif quiet:
+        for w in results.get("warnings") or []:
+            click.echo(f"warning: {w.get('measure')}: {w.get('message')}", err=True)
     else:
-        click.echo(format_summary(results))
+        click.echo(format_summary(results, terminal_width()))

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import click
 
-from . import progress_printer
+from . import archive_option, json_option, progress_printer, quiet_option
 
 
 @click.command("verify")
@@ -19,16 +19,12 @@ from . import progress_printer
     help="A certificate (PEM or DER) trusted to sign reports; repeatable. With it, a signature "
     "by anyone else fails.",
 )
-@click.option(
-    "--archive",
-    "archive_dir",
-    type=click.Path(path_type=Path, file_okay=False),
-    default=None,
+@archive_option(
     help="Also re-check every file of this archive against the SHA-256 of its index, and say "
     "whether REPORT is archived there. REPORT may then be left out.",
 )
-@click.option("--json", "as_json", is_flag=True, help="Print the findings as JSON.")
-@click.option("-q", "--quiet", is_flag=True, help="Print only failures.")
+@json_option("the findings")
+@quiet_option()
 def command(
     report: Path | None,
     trust: tuple[Path, ...],
@@ -63,8 +59,14 @@ def command(
     result = verify_report(report, trust=trust, progress=progress)
     if as_json:
         click.echo(json.dumps(result.as_dict(), indent=2))
-    elif not quiet or not result.ok:
+    elif not quiet:
         click.echo(result.format(), nl=False)
+    elif not result.ok:  # only the problems: the failed checks, no "ok" lines
+        lines = [f"{report}: NOT GENUINE"]
+        for f in result.failures():
+            lines.append(f"  FAIL  {f.check}: {f.message}")
+            lines += [f"          {d}" for d in f.details]
+        click.echo("\n".join(lines))
     if not archive_ok and result.ok:
         raise CheckFailed("the archive is not intact: see the files listed above")
     if not result.ok:

@@ -16,7 +16,10 @@ heat ramp      #f7f9fb → #16324f   counts in the confusion maps (single hue, l
 =============  =========  ==================================================================
 
 Category colours in the item map are a lightness ramp for ordinal scales (best = lightest) and
-a set of six fills with distinct lightness plus hatching for nominal scales.
+a set of six fills for nominal scales; in both, neighbouring fills differ by at least
+``MIN_LIGHTNESS_STEP`` in CIE L* so that they stay apart on a greyscale print, and a missing
+rating is white with its own cross-hatch. Text is at least ``MIN_TEXT_PT`` at print size: a chart
+is drawn no wider than ``PRINT_WIDTH_IN`` (the text width of an A4 page), so it is never shrunk.
 
 Determinism: ``svg.hashsalt`` is set per chart, ``metadata={"Date": None}``, text is drawn as
 paths (no dependence on installed fonts), and dense marks (the item map) are rasterised.
@@ -40,9 +43,20 @@ SAND = "#f3ead7"
 PAPER = "#ffffff"
 HEAT_LOW = "#f7f9fb"
 HEAT_HIGH = "#16324f"
-#: nominal category fills, in order: lightness differs step by step, hatches tell them apart too
-NOMINAL_FILLS = ("#e8eef4", "#9fb8cf", "#c98a1b", "#3f6e9a", "#f3ead7", "#1d2733")
-NOMINAL_HATCH = ("", "//", "--", "", "xx", "")
+#: nominal category fills, in order; CIE L* 94, 78, 61, 45, 30, 14 (each pair >= 15 apart)
+NOMINAL_FILLS = ("#e9eff4", "#afc4d7", "#c5871a", "#3f6e9a", "#5e4110", "#1b2430")
+#: a missing rating in the item map: white cells under a grey cross-hatch (a pattern of its own)
+MISSING_HATCH = "xxxx"
+MISSING_EDGE = "#8a939c"
+#: series of the steps-apart bars: fills, and hatches where two fills are close in lightness
+STEPS_FILLS = (SLATE, OCHRE, MIST, INK, SAND, "#9fb8cf")
+STEPS_HATCHES = ("", "//", "--", "", "xx", "\\\\")
+#: smallest difference in CIE L* between two legend entries told apart by fill alone
+MIN_LIGHTNESS_STEP = 15.0
+#: smallest chart text at print size, in points
+MIN_TEXT_PT = 7.0
+#: widest chart, in inches: the text width of an A4 page with the report's 15 mm side margins
+PRINT_WIDTH_IN = 180 / 25.4
 
 PALETTE = {
     "ink": INK,
@@ -151,6 +165,53 @@ def _register_fonts() -> None:
     _FONTS_DONE = True
 
 
+def lightness(colour: Sequence[float] | str) -> float:
+    """CIE L* (0 black … 100 white) of an sRGB colour given as hex or as 0–1 floats."""
+    if isinstance(colour, str):
+        h = colour.lstrip("#")
+        rgb = [int(h[i : i + 2], 16) / 255 for i in (0, 2, 4)]
+    else:
+        rgb = [float(c) for c in colour[:3]]
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    y = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+    return 116 * (y ** (1 / 3) if y > (6 / 29) ** 3 else y / (3 * (6 / 29) ** 2) + 4 / 29) - 16
+
+
+def _mix(t: float) -> tuple[float, float, float]:
+    a, b = HEAT_LOW.lstrip("#"), HEAT_HIGH.lstrip("#")
+    lo = [int(a[i : i + 2], 16) / 255 for i in (0, 2, 4)]
+    hi = [int(b[i : i + 2], 16) / 255 for i in (0, 2, 4)]
+    r, g, bl = (x + (y - x) * t for x, y in zip(lo, hi, strict=True))
+    return (r, g, bl)
+
+
+def ordinal_fills(k: int) -> list[tuple[float, float, float]]:
+    """``k`` fills along the heat ramp, evenly spaced in L* from L* 96 (best) to the darkest
+    end, so that neighbours differ by the same lightness step (>= 15 L* up to six categories)."""
+    top, bottom = 96.0, lightness(HEAT_HIGH)
+    targets = [top] if k == 1 else [top + (bottom - top) * i / (k - 1) for i in range(k)]
+    out = []
+    for target in targets:
+        lo, hi = 0.0, 1.0  # lightness falls as t grows
+        for _ in range(40):
+            mid = (lo + hi) / 2
+            if lightness(_mix(mid)) > target:
+                lo = mid
+            else:
+                hi = mid
+        out.append(_mix((lo + hi) / 2))
+    return out
+
+
+def category_fills(k: int, *, ordinal: bool) -> list[tuple[float, float, float]]:
+    """The item map's fill for each of ``k`` categories (ordinal ramp or nominal set)."""
+    if ordinal:
+        return ordinal_fills(k)
+    from matplotlib.colors import to_rgb
+
+    return [tuple(to_rgb(NOMINAL_FILLS[i % len(NOMINAL_FILLS)])) for i in range(k)]  # type: ignore[misc]
+
+
 def _tight(fig: Any, **kw: Any) -> None:
     """``fig.tight_layout`` without its warning when long names leave it no room (the figure is
     then kept as laid out; the warning would only reach the user's terminal)."""
@@ -232,11 +293,20 @@ def interval_panels(
     plt = _plt()
     _style(plt, name)
     n_rows = max((len(p[1]) for p in panels), default=1)
+    # at most two panels side by side, so that the chart is printed at its own size
+    cols = max(1, min(len(panels), 2))
+    grid_rows = (len(panels) + cols - 1) // cols
     fig, axes = plt.subplots(
-        1, len(panels), figsize=(max(3.0, 2.55 * len(panels)), 0.42 * n_rows + 0.9), squeeze=False
+        grid_rows,
+        cols,
+        figsize=(max(3.0, 2.9 * cols + 0.6), (0.42 * n_rows + 0.9) * grid_rows),
+        squeeze=False,
     )
-    for k, (ptitle, points, band, (lo, hi)) in enumerate(panels):
-        ax = axes[0][k]
+    for idx in range(len(panels), grid_rows * cols):
+        axes[idx // cols][idx % cols].axis("off")
+    for idx, (ptitle, points, band, (lo, hi)) in enumerate(panels):
+        ax = axes[idx // cols][idx % cols]
+        k = idx % cols
         _draw_bands(ax, band, lo, hi)
         ys = list(range(len(points)))[::-1]
         for y, pt in zip(ys, points, strict=True):
@@ -254,7 +324,7 @@ def interval_panels(
                     "undefined",
                     ha="center",
                     va="center",
-                    fontsize=7,
+                    fontsize=7.5,
                     style="italic",
                 )
         ax.set_xlim(lo, hi)
@@ -290,11 +360,11 @@ def confusion_maps(
     n = len(maps)
     cols = min(n, 3 if k <= 4 else 2)
     rows = (n + cols - 1) // cols
-    side = 0.42 * k + 1.0
+    side = 0.32 * k + 0.9
     fig, axes = plt.subplots(
         rows, cols, figsize=(side * cols + 0.4, side * rows + 0.2), squeeze=False
     )
-    short = [_short(lbl, 12) for lbl in labels]
+    short = [_short(lbl, 18) for lbl in labels]
     for idx in range(rows * cols):
         ax = axes[idx // cols][idx % cols]
         if idx >= n:
@@ -319,8 +389,8 @@ def confusion_maps(
                 )
         ax.set_xticks(range(k))
         ax.set_yticks(range(k))
-        ax.set_xticklabels(short, rotation=45, ha="right", fontsize=7)
-        ax.set_yticklabels(short if idx % cols == 0 else [""] * k, fontsize=7)
+        ax.set_xticklabels(short, rotation=45, ha="right", fontsize=7.5)
+        ax.set_yticklabels(short if idx % cols == 0 else [""] * k, fontsize=7.5)
         ax.set_title(_short(rater, 24), fontsize=8.5, loc="left")
         ax.spines[:].set_visible(False)
         ax.set_xticks(np.arange(-0.5, k, 1), minor=True)
@@ -349,8 +419,7 @@ def steps_apart(
 
     plt = _plt()
     _style(plt, name)
-    fills = (SLATE, OCHRE, MIST, INK, SAND, "#9fb8cf")
-    hatches = ("", "//", "--", "", "xx", "\\\\")
+    fills, hatches = STEPS_FILLS, STEPS_HATCHES
     n = max(len(series), 1)
     width = 0.8 / n
     fig, ax = plt.subplots(figsize=(6.4, 2.6))
@@ -373,7 +442,7 @@ def steps_apart(
     ax.set_xlabel("steps apart from the reference (− better than the reference, + worse)")
     ax.set_ylabel("share of ratings")
     ax.yaxis.set_major_formatter(lambda v, _pos: f"{100 * v:.0f} %")
-    ax.legend(frameon=False, fontsize=7, ncol=min(n, 4), loc="upper left")
+    ax.legend(frameon=False, fontsize=7.5, ncol=min(n, 4), loc="upper left")
     ax.grid(axis="y", color="#c4c9cf", lw=0.4)
     ax.set_axisbelow(True)
     _tight(fig)
@@ -398,22 +467,12 @@ def item_map(
     ``grid[i][c]`` is a category index or -1 (missing).  The cell image is rasterised.
     """
     import numpy as np
-    from matplotlib.colors import ListedColormap, to_rgb
+    from matplotlib.colors import ListedColormap
 
     plt = _plt()
     _style(plt, name)
     k = len(categories)
-    if ordinal:
-        ramp = [
-            tuple(
-                float(a + (b - a) * t)
-                for a, b in zip(to_rgb(HEAT_LOW), to_rgb(HEAT_HIGH), strict=True)
-            )
-            for t in (np.linspace(0.0, 1.0, k) if k > 1 else [0.5])
-        ]
-        colours = ramp
-    else:
-        colours = [to_rgb(NOMINAL_FILLS[i % len(NOMINAL_FILLS)]) for i in range(k)]
+    colours = category_fills(k, ordinal=ordinal)
     cmap = ListedColormap([(1.0, 1.0, 1.0)] + list(colours))
     g = np.asarray(grid, dtype=float) + 1  # -1 → 0 (white)
     n_items = g.shape[0]
@@ -425,12 +484,27 @@ def item_map(
         full[:, n_cols] = np.nan
         full[:, n_cols + 1] = np.asarray(reference, dtype=float) + 1
     height = min(0.14 * n_items + 1.4, 9.2)
-    width = min(0.26 * (n_cols + extra) + 2.4, 6.8)
+    width = min(0.26 * (n_cols + extra) + 2.4, PRINT_WIDTH_IN - 1.9)
     fig, ax = plt.subplots(figsize=(width, height))
     masked = np.ma.masked_invalid(full)
     ax.imshow(
         masked, cmap=cmap, vmin=0, vmax=k, aspect="auto", interpolation="nearest", rasterized=True
     )
+    from matplotlib.patches import Rectangle
+
+    missing = np.argwhere(np.asarray(grid) < 0)
+    for i, c in missing.tolist():
+        ax.add_patch(
+            Rectangle(
+                (c - 0.5, i - 0.5),
+                1,
+                1,
+                facecolor="none",
+                edgecolor=MISSING_EDGE,
+                hatch=MISSING_HATCH,
+                lw=0,
+            )
+        )
     if reference is not None:
         ref = np.asarray(reference)
         for i in range(n_items):
@@ -450,10 +524,10 @@ def item_map(
                 )
     labels = [_short(c, 10) for c in columns] + (["", "reference"] if reference is not None else [])
     ax.set_xticks(range(n_cols + extra))
-    ax.set_xticklabels(labels, rotation=90, fontsize=6.5)
-    step = max(1, n_items // 60)
+    ax.set_xticklabels(labels, rotation=90, fontsize=7.5)
+    step = max(1, n_items // 48)
     ax.set_yticks(range(0, n_items, step))
-    ax.set_yticklabels([_short(items[i], 14) for i in range(0, n_items, step)], fontsize=6)
+    ax.set_yticklabels([_short(items[i], 14) for i in range(0, n_items, step)], fontsize=7)
     ax.tick_params(length=0)
     ax.spines[:].set_visible(False)
     from matplotlib.patches import Patch
@@ -462,7 +536,11 @@ def item_map(
         Patch(facecolor=colours[i], edgecolor=INK, lw=0.4, label=_short(categories[i], 16))
         for i in range(k)
     ]
-    handles.append(Patch(facecolor="white", edgecolor=INK, lw=0.4, label="missing"))
+    handles.append(
+        Patch(
+            facecolor="white", edgecolor=MISSING_EDGE, hatch=MISSING_HATCH, lw=0.4, label="missing"
+        )
+    )
     if reference is not None:
         from matplotlib.lines import Line2D
 
@@ -480,7 +558,7 @@ def item_map(
             )
         )
     ax.legend(
-        handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=6.5
+        handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=7.5
     )
     _tight(fig)
     return Chart(name, _svg(fig), title, alt, note)

@@ -271,6 +271,6 @@ GLOSSARY: tuple[tuple[str, str], ...] = (
     ("verdict", "the study's overall outcome: PASS or IMPROVE"),
     ("misses", "defect items rated as conforming"),
     ("false alarms", "conforming items rated as defect"),
-    ("mixed calls", "items a rater called differently in different trials"),
+    ("changed calls", "items a rater called differently in different trials"),
     ("steps apart", "on an ordered scale, how many categories separate two ratings"),
 )

@@ -313,11 +313,12 @@ def test_build_archive(tmp_path: Path, run_cli, monkeypatch: pytest.MonkeyPatch)
     from reportgen.archive import is_read_only, list_entries
 
     monkeypatch.delenv("REPORTGEN_ARCHIVE", raising=False)
+    monkeypatch.chdir(tmp_path)
     s = small_study(tmp_path / "s")
     out = tmp_path / "out"
     code, stdout, err = run_cli("build", s, "-o", out, "--generated-at", GENERATED_AT, "--archive")
     assert code == 0, err
-    archive = tmp_path / "archive"  # the default: archive/ beside output/
+    archive = tmp_path / "archive"  # the rule: no archive here or above -> ./archive
     assert f"  archived in {archive / 'TEST-01' / 'rev1'}" in stdout.splitlines()
     (entry,) = list_entries(archive)
     assert (entry.study_id, entry.revision, entry.folder) == ("TEST-01", 1, "TEST-01/rev1")
