@@ -289,13 +289,23 @@ def safe_cell(value: Any) -> Any:
     return value
 
 
+def csv_rows(reg: Register, *, safe: bool = True) -> list[dict[str, str]]:
+    """The register's rows as text by CSV column; ``safe`` writes formula-like cells safely."""
+    rows = []
+    for ln in reg.lines:
+        d = asdict(ln)
+        rows.append(
+            {c: "" if d[c] is None else str(safe_cell(d[c]) if safe else d[c]) for c in CSV_COLUMNS}
+        )
+    return rows
+
+
 def to_csv(reg: Register) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(CSV_COLUMNS)
-    for ln in reg.lines:
-        d = asdict(ln)
-        w.writerow(["" if d[c] is None else safe_cell(d[c]) for c in CSV_COLUMNS])
+    for row in csv_rows(reg):
+        w.writerow([row[c] for c in CSV_COLUMNS])
     return buf.getvalue()
 
 

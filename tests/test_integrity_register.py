@@ -188,3 +188,17 @@ def test_cli_as_of_before_any_study(two_rounds: Path) -> None:
     r = CliRunner().invoke(command, ["--archive", str(two_rounds), "--as-of", "2026-01-01"])
     assert r.exit_code == 0, r.output
     assert "not yet certified" in r.output and " valid " not in r.output
+
+
+def test_json_rows_keep_names_exactly(tmp_path: Path) -> None:
+    import json
+
+    from reportgen.commands.register import command
+
+    root = tmp_path / "archive"
+    archive_revision(
+        make_revision(tmp_path / "output", raters={"I1": "=HYPERLINK(1)"}), archive_dir=root
+    )
+    r = CliRunner().invoke(command, ["--archive", str(root), "--as-of", "2026-06-01", "--json"])
+    assert r.exit_code == 0, r.output
+    assert [row["inspector"] for row in json.loads(r.output)["rows"]] == ["=HYPERLINK(1)"]

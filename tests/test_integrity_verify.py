@@ -78,6 +78,7 @@ def _append_overlay(src: Path, dst: Path) -> None:
 def test_untouched_report_is_proven_byte_for_byte(report_a: Path) -> None:
     v = verify_report(report_a)
     assert v.ok, v.format()
+    assert (v.state, v.as_dict()["state"], v.draft) == ("release", "release", False)
     ok, msg, _ = _checks(v)["document"]
     assert ok
     size = report_a.stat().st_size
