@@ -21,15 +21,18 @@ from pathlib import Path
 from typing import Any
 
 from ..model import Ratings, Study
+from .conventions import report_conventions
 from .measures import BIBLIOGRAPHY, GLOSSARY, MEASURES
+from .plainwords import formula_html, plain_text
 from .readings import read_measure
 
-#: report sections, in the order and with the names of /shared/VOCABULARY.md
+#: report sections, with the names of /shared/VOCABULARY.md, in the order of its direction for
+#: this version: the core (verdict, study, raters, panel, categories, criteria and sign-off) and
+#: then what a reader looks up (the method statement and the appendix)
 SECTIONS: tuple[tuple[str, str], ...] = (
     ("summary", "Summary and verdict"),
     ("scope", "Scope"),
     ("design", "Study design"),
-    ("method", "Method statement"),
     ("integrity", "Data integrity"),
     ("repeatability", "Rater repeatability"),
     ("accuracy", "Rater accuracy"),
@@ -41,6 +44,7 @@ SECTIONS: tuple[tuple[str, str], ...] = (
     ("caveats", "Reading the coefficients"),
     ("certification", "Inspector certification"),
     ("signoff", "Sign-off"),
+    ("method", "Method statement"),
     ("appendix", "Appendix"),
 )
 
@@ -640,7 +644,7 @@ def _method(results: Mapping[str, Any]) -> list[dict[str, Any]]:
             {
                 "key": key,
                 "name": info.name,
-                "formula": list(info.formula),
+                "formula": [formula_html(line) for line in info.formula],
                 "why": info.why,
                 "sources": [BIBLIOGRAPHY[s] for s in info.source],
                 "where": where[key],
@@ -912,11 +916,28 @@ def _sources(study: Study, ratings: Ratings | None) -> list[dict[str, Any]]:
     return out
 
 
+#: how the ratings appendix marks a rating that is missing
+MISSING_MARK = "–"
+
+
+def _natural_key(text: str) -> list[tuple[int, Any]]:
+    """Sort key: "IT-2" before "IT-10"."""
+    import re
+
+    return [(0, int(p)) if p.isdigit() else (1, p) for p in re.split(r"(\d+)", text) if p]
+
+
 def _ratings_table(
     ratings: Ratings | None, study: Study, results: Mapping[str, Any]
 ) -> dict[str, Any]:
     if ratings is None:
-        return {"columns": [], "rows": [], "truncated": False, "total_items": 0}
+        return {
+            "columns": [],
+            "rows": [],
+            "truncated": False,
+            "total_items": 0,
+            "missing_mark": MISSING_MARK,
+        }
     codes = ratings.categories
     cols = [
         f"{r} t{t + 1}" if ratings.n_trials > 1 else r
@@ -925,8 +946,12 @@ def _ratings_table(
     ]
     rows = []
     n_show = min(ratings.n_items, RATINGS_TABLE_LIMIT)
-    for i in range(n_show):
-        cells = [codes[c] if c >= 0 else "" for c in ratings.codes[i].reshape(-1).tolist()]
+    # in item order (numbers inside ids compared as numbers), whatever the order of the files
+    order = sorted(range(ratings.n_items), key=lambda i: _natural_key(str(ratings.items[i])))
+    for i in order[:n_show]:
+        cells = [
+            codes[c] if c >= 0 else MISSING_MARK for c in ratings.codes[i].reshape(-1).tolist()
+        ]
         ref = None
         if ratings.reference is not None and int(ratings.reference[i]) >= 0:
             ref = codes[int(ratings.reference[i])]
@@ -936,6 +961,7 @@ def _ratings_table(
         "rows": rows,
         "truncated": ratings.n_items > n_show,
         "total_items": ratings.n_items,
+        "missing_mark": MISSING_MARK,
         "has_reference": ratings.reference is not None,
     }
 
@@ -1011,6 +1037,8 @@ def build_context(
     if criteria is not None and criteria["source"]:
         study_view["criteria_source"] = criteria["source"]
     verdict = verdict_view(results, raters)
+    if verdict is not None and verdict.get("sentence"):
+        verdict["sentence"] = plain_text(str(verdict["sentence"]), _measure_label, raters)
     sections = []
     for anchor, title in SECTIONS:
         if anchor == "ordinal" and study.scale != "ordinal":
@@ -1056,7 +1084,7 @@ def build_context(
         {"trial": t, "measures": _rows(e, REPRO_ORDER)}
         for t, e in sorted((repro_raw.get("by_trial") or {}).items(), key=lambda x: int(x[0]))
     ]
-    conventions = [{"topic": k, "text": v} for k, v in (results.get("conventions") or {}).items()]
+    conventions = report_conventions(results)
     miss = (results.get("caveats") or {}).get("missing") or {}
     completeness = {
         "expected_ratings": miss.get("expected_ratings"),
@@ -1100,7 +1128,7 @@ def build_context(
         hard_items=_hard_items(results, study),
         caveats=_caveats(results, study, raters),
         certification=certification_view(results, study, raters),
-        actions=actions_view(results),
+        actions=[plain_text(a, _measure_label, raters) for a in actions_view(results)],
         warnings=[
             w if isinstance(w, Mapping) else {"measure": "", "message": str(w)}
             for w in results.get("warnings") or []

@@ -20,12 +20,13 @@ STUDIES = REPO / "studies"
 GENERATED_AT = "2026-11-20T09:00:00Z"
 WHEN = dt.datetime(2026, 11, 20, 9, 0, tzinfo=dt.UTC)
 
-#: section headings, in the order of /shared/VOCABULARY.md ("Report sections, in order")
+#: section headings, with the words of /shared/VOCABULARY.md ("Report sections, in order"), in
+#: the order of its direction for this version: the core first, then the method statement and
+#: the appendix
 SECTION_TITLES = [
     "Summary and verdict",
     "Scope",
     "Study design",
-    "Method statement",
     "Data integrity",
     "Rater repeatability",
     "Rater accuracy",
@@ -37,6 +38,7 @@ SECTION_TITLES = [
     "Reading the coefficients",
     "Inspector certification",
     "Sign-off",
+    "Method statement",
     "Appendix",
 ]
 
