@@ -1,7 +1,7 @@
 """The register of inspectors: who is certified for which characteristic, and until when.
 
 Built from the archive index only.  A line is one rater (by rater id) in one study (all its
-archived revisions: the rounds of its requalification); two raters sharing a name stay two
+archived revisions and rounds ``<id>.round<N>``: its requalifications); two raters sharing a name stay two
 lines.  Names are shown as given, in Unicode NFC.  On a given day only the rounds assessed on or
 before that day count, and the latest of them decides (latest = study date, then revision, then
 archived-at); a failed requalification therefore ends an earlier certification.
@@ -30,6 +30,7 @@ from pathlib import Path
 from typing import Any, Literal
 
 from .archive import ArchiveEntry, list_entries
+from .rounds import split_round
 
 Status = Literal["valid", "due", "expired", "not certified", "not yet certified"]
 STATUSES: tuple[Status, ...] = ("valid", "due", "expired", "not certified", "not yet certified")
@@ -122,7 +123,9 @@ def build_register(
                 continue
             when = str(c.get("assessed_on") or e.study_date or e.archived_at[:10])
             rank = (when, e.revision, e.archived_at)
-            rounds.setdefault((e.study_id, str(rid)), []).append((rank, e, str(rid), c))
+            # all rounds of one study (``<id>``, ``<id>.round2`` …) and their revisions
+            series = split_round(e.study_id)[0]
+            rounds.setdefault((series, str(rid)), []).append((rank, e, str(rid), c))
     lines = []
     for (_study, _rid), found in rounds.items():
         found.sort(key=lambda x: x[0])
@@ -188,7 +191,7 @@ def shared_names(reg: Register) -> list[str]:
     seen: dict[tuple[str, str], set[tuple[str, str]]] = {}
     for ln in reg.lines:
         seen.setdefault((_key(ln.inspector), _key(ln.characteristic)), set()).add(
-            (ln.study_id, ln.rater_id)
+            (split_round(ln.study_id)[0], ln.rater_id)
         )
     out = []
     for (_name, _char), ids in sorted(seen.items()):
