@@ -29,6 +29,8 @@ EXPECTED: dict[str, tuple[str, str, int, int, int, bool, str]] = {
     "finish-grading": ("FINISH-GRADE-DEMO", "ordinal", 48, 4, 2, True, "PASS"),
     "seal-check": ("SEAL-CHECK-DEMO", "binary", 50, 3, 3, True, "IMPROVE"),
     "defect-triage": ("RETURNS-TRIAGE-DEMO", "nominal", 64, 5, 1, False, "IMPROVE"),
+    "bore-plug-gauge": ("BORE-PLUG-GAUGE-DEMO", "binary", 16, 2, 20, True, "IMPROVE"),
+    "coating-pores": ("COATING-PORES-DEMO", "binary", 36, 3, 6, True, "IMPROVE"),
 }
 
 
@@ -56,7 +58,9 @@ def test_every_demo_study_is_expected() -> None:
 
 def test_simulation_regenerates_every_csv_byte_for_byte() -> None:
     files = _simulate_module().generate()
-    assert len(files) == 8  # ratings + items for three studies, reference for two
+    # ratings + items for three studies, reference for two; ratings, reference, values and
+    # items for the two measured-reference studies
+    assert len(files) == 16
     for path, text in files.items():
         assert path.read_bytes() == text.encode("utf-8"), (
             f"{path} differs from what simulate.py makes"
@@ -163,10 +167,18 @@ def test_passing_study_clears_every_level_with_room() -> None:
 
 
 @pytest.mark.skipif(not HAS_VERDICT, reason="verdict module not there yet")
-def test_seal_check_certifies_only_the_inspector_on_target() -> None:
+def test_seal_check_certifies_no_inspector_a_criterion_rates_short() -> None:
+    # issue 12: INS-A's 5.3 % miss rate is short of the study's own 2 % criterion, so the
+    # certificate it used to get (under a looser 6 % certification rule) is withheld
     _, _, judged = _judged("seal-check")
     outcome = {i["rater"]: i["outcome"] for i in judged["certification"]["inspectors"]}
-    assert outcome == {"INS-A": "certified", "INS-B": "not certified", "INS-C": "not certified"}
+    assert outcome == {
+        "INS-A": "not certified",
+        "INS-B": "not certified",
+        "INS-C": "not certified",
+    }
+    short = {c["rater"] for c in judged["verdict"]["rules"] if c["outcome"] != "meets"}
+    assert short == {"INS-A", "INS-B", "INS-C"}
 
 
 @pytest.fixture(scope="module")
