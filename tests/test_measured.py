@@ -181,3 +181,45 @@ def test_a90_95_covers_the_true_a90_in_at_least_93_percent_of_500_runs() -> None
     print(f"a90/95 coverage: {covered}/{500 - refused} = {rate:.3f} ({refused} refused)")  # noqa: T201
     assert refused == 0
     assert rate >= 0.93
+
+
+@pytest.mark.render
+@pytest.mark.parametrize(
+    ("folder", "charts", "words"),
+    [
+        (
+            "bore-plug-gauge",
+            ["gauge-curve.svg", "disagreement-zone.svg"],
+            ["Gauge performance curve", "Bias shown", "Disagreement zone"],
+        ),
+        (
+            "coating-pores",
+            ["detection-curve.svg", "disagreement-zone.svg"],
+            ["Probability of detection", "a90/95 (likelihood ratio)"],
+        ),
+    ],
+)
+def test_report_shows_the_measured_section(
+    tmp_path: Path, run_cli, folder: str, charts: list[str], words: list[str]
+) -> None:
+    out = tmp_path / "out"
+    code, _o, err = run_cli(
+        "build",
+        STUDIES / folder / "study.yaml",
+        "-o",
+        out,
+        "--no-pdf",
+        "--generated-at",
+        "2026-12-01T09:00:00Z",
+    )
+    assert code in (0, 4), err  # 4 only with --strict
+    rev = next(out.glob("*/rev1"))
+    html = next(rev.glob("*.html")).read_text(encoding="utf-8")
+    assert '<section class="sec" id="measured">' in html
+    for w in words:
+        assert w in html
+    for c in charts:
+        assert (rev / c).is_file()
+    results = json.loads((rev / "results.json").read_text())
+    for line in results["measured"]["readings"]:
+        assert line.split(":")[0] in html  # every reading is shown

@@ -65,6 +65,7 @@ def gauge_curves(m: dict[str, Any], name: str = "gauge-curve") -> Chart | None:
             )
         ax.axvline(rec["limit"], color=OCHRE, lw=1.1, ls="--", label=f"{side} limit")
         ax.set_ylim(-0.04, 1.04)
+        ax.ticklabel_format(axis="x", useOffset=False, style="plain")
         ax.set_ylabel("acceptance")
         ax.set_title(f"{_short(rid)}, {side} limit", fontsize=8.5, loc="left")
         ax.grid(color="#c4c9cf", lw=0.4)
@@ -186,6 +187,8 @@ def zone_chart(m: dict[str, Any], name: str = "disagreement-zone") -> Chart | No
         seen.setdefault(lab, h)
     ax.legend(seen.values(), seen.keys(), frameon=False, fontsize=6.5, ncol=3, loc="center right")
     ax.set_ylim(-0.08, 1.08)
+    if ax.get_xscale() == "linear":
+        ax.ticklabel_format(axis="x", useOffset=False, style="plain")
     ax.set_xlabel(f"reference value ({m['unit']})")
     ax.set_ylabel("share accepted")
     ax.grid(axis="x", color="#c4c9cf", lw=0.4)
