@@ -122,10 +122,11 @@ def test_plan_next_round_leaves_round_one_whole(run_cli, tmp_path: Path) -> None
     )
     assert str(s2.date) == "2026-11-09"
     assert s2.key_path == (r2 / "plan" / "key" / "key.csv").resolve()
-    # new labels: round 2's key shares no label with round 1's
+    # new labels: round 2's key is a new draw, not round 1's (the draws are independent, so a
+    # few labels may coincide by chance; most must differ)
     k1 = {r["label"] for r in csv.DictReader((study / "plan" / "key" / "key.csv").open())}
     k2 = {r["label"] for r in csv.DictReader((r2 / "plan" / "key" / "key.csv").open())}
-    assert k1 and k2 and not (k1 & k2)
+    assert k1 and k2 and len(k1 & k2) < len(k1) // 2
     # the round's STUDY may be given as any round's definition: next is then 3
     code, out, err = run_cli("plan", r2, "--round", "next", "--no-pdf", "--json")
     assert code == 0, err
