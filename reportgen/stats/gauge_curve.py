@@ -1,7 +1,7 @@
 """Gauge performance curve of a go/no-go gauge: the analytic method (numpy only).
 
 Source: AIAG, Measurement Systems Analysis reference manual, 4th edition (2010), chapter III,
-section C (the analytic method for attribute gauges).  The formulas below are as we recall them
+section C (the analytic method for go/no-go gauges).  The formulas below are as we recall them
 ("from memory": no copy of the manual could be re-read while writing this module):
 
 * acceptance probability of an item accepted ``a`` times in ``m`` checks, with the small-count
