@@ -26,6 +26,7 @@ from typing import Any
 
 from .archive import PANEL_FIGURES, RATER_FIGURES, ArchiveEntry, list_entries
 from .errors import InputError
+from .rounds import point_label
 
 #: headings of the figures, in plain words
 MEASURE_LABELS: dict[str, str] = {
@@ -231,7 +232,7 @@ def build_history(entries: Sequence[ArchiveEntry]) -> list[TrendSeries]:
             points.append(
                 TrendPoint(
                     entry=e,
-                    label=f"{e.study_id} rev{e.revision}",
+                    label=point_label(e.study_id, e.revision),
                     superseded_by=later[0] if later else None,
                     item_set_changed=changed,
                     items_added=added,

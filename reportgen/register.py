@@ -114,6 +114,8 @@ def build_register(
                 continue
             name = str(c.get("name") or rid)
             when = c.get("assessed_on") or e.study_date or e.archived_at[:10]
+            if str(when)[:10] > as_of.isoformat():
+                continue  # a later round: not yet evidence on the day asked for
             rank = (when, e.revision, e.archived_at, e.study_id)
             k = (_key(name), _key(characteristic))
             if k not in latest or rank > latest[k][0]:

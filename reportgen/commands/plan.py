@@ -20,6 +20,20 @@ import click
 from . import json_option, progress_printer, quiet_option, study_argument
 
 
+def _round_items(study: Path) -> Path | None:
+    """The latest round's ``items.csv`` (the default item list of ``--round``), or None."""
+    from ..rounds import find_rounds
+    from ..study import load_study
+
+    loaded = load_study(study, require_inputs=False)
+    rounds = find_rounds(loaded.path, loaded.id)
+    for n in sorted(rounds.files, reverse=True):
+        candidate = rounds.files[n].parent / "items.csv"
+        if candidate.is_file():
+            return candidate
+    return None
+
+
 def in_study_folder(study: object) -> Path | None:
     """``<study folder>/plan`` when the study's key is ``plan/key/key.csv`` there, else None."""
     key = getattr(study, "key_path", None)
@@ -84,6 +98,15 @@ def in_study_folder(study: object) -> Path | None:
     show_default=True,
     help="Simulated studies per item count in the advice.",
 )
+@click.option(
+    "--round",
+    "round_",
+    metavar="next|N",
+    default=None,
+    help="Plan a round of the study (a requalification): 'next' starts a new round in "
+    "STUDY/round<N>/ (its own study definition, item list, plan and key) without touching an "
+    "earlier round's files. --items defaults to the latest round's items.csv.",
+)
 @json_option("the plan summary and advice")
 @quiet_option()
 def command(
@@ -97,10 +120,15 @@ def command(
     agreement: float,
     target: float | None,
     runs: int,
+    round_: str | None,
     as_json: bool,
     quiet: bool,
 ) -> None:
     """Write blind, randomised run sheets for a study, or advise on its size."""
+    if round_ is not None and output is not None:
+        raise click.UsageError("--round writes into the study folder; leave out -o/--output")
+    if round_ is not None and items_file is None:
+        items_file = _round_items(study)
     if items_file is None and not advise:
         raise click.UsageError(
             "give --items items.csv to write run sheets, or --advise for the sample-size advice"
@@ -112,6 +140,16 @@ def command(
     study_file = study
     study = load_study(study_file, require_inputs=False)  # planned before the first rating
     progress = progress_printer(quiet, log=not as_json)
+    new_round: int | None = None
+    if round_ is not None:
+        from ..rounds import choose_round, find_rounds
+
+        rounds = find_rounds(study.path, study.id)
+        n = choose_round(rounds, round_)
+        if n in rounds.files:
+            study = load_study(rounds.files[n], require_inputs=False)
+        else:
+            new_round = n
     items = load_items(items_file, study) if items_file is not None else None
     settings = plan_settings(study, seed=seed, start=start.date() if start else None)
 
@@ -130,6 +168,41 @@ def command(
         )
 
     out: dict[str, object] = {}
+    if new_round is not None and items_file is not None:
+        from ..rounds import start_round
+
+        made: list[object] = []
+
+        def write(round_study: object, folder: Path) -> None:
+            its = load_items(items_file, round_study)
+            st = plan_settings(round_study, seed=seed, start=start.date() if start else None)
+            made.append(make_plan(round_study, its, st))
+            write_plan(
+                made[0],
+                round_study,
+                output_dir=Path("output"),
+                folder=folder,
+                pdf=not no_pdf,
+                advice=adv.as_dict() if adv is not None else None,
+                progress=progress,
+            )
+
+        day = (start.date() if start else dt.datetime.now(dt.UTC).date()).isoformat()
+        where = start_round(rounds, new_round, items_file=items_file, date=day, write=write)
+        plan = made[0]
+        folder = where / "plan"
+        out["round"] = {"round": new_round, "folder": str(where)}
+        out["plan"] = {**plan.summary, "folder": str(folder)}
+        if not quiet and not as_json:
+            click.echo(summary_text(plan), nl=False)
+            click.echo(f"\nStarted round {new_round} in {where}; earlier rounds are untouched.")
+            click.echo(f"Wrote the plan into {folder}")
+            click.echo(f"Keep {folder / 'key'} away from the raters.")
+            click.echo(
+                f"Next: fill in {folder / 'ratings-entry.csv'}, then run: "
+                f"reportgen build {where} --archive"
+            )
+        items = None
     if items is not None:
         plan = make_plan(study, items, settings)
         folder = write_plan(
