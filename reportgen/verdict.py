@@ -993,6 +993,9 @@ class _Parser:
                 k: (params[v[1:]] if isinstance(v, str) and v.startswith("$") else v)
                 for k, v in raw.items()
             }
+            if self.study.safety_related and raw.get("better") == "lower" and "judge" not in raw:
+                # safety-related: a rate is judged on its one-sided exact upper bound
+                raw = {**raw, "judge": "upper_bound", "confidence": self.study.confidence}
             sub = _Parser(self.study, self.results, self.has_reference)
             r = sub.rule([*keys, "set"], raw, i + 1)
             errors = [p for p in sub.problems if p.severity == "error"]
@@ -1072,8 +1075,14 @@ class _Parser:
             else:
                 due = v
         source = data.get("source")
-        if source is not None and not isinstance(source, str):
-            self.error([*keys, "source"], "must be text")
+        if not isinstance(source, str) or not source.strip():
+            self.error(
+                [*keys, "source"] if "source" in data else keys,
+                "say where these certification levels come from"
+                if "source" not in data
+                else "must be text naming where the levels come from",
+                'e.g. source: "Inspector qualification procedure QP-12, section 3"',
+            )
         marginal_is = self.marginal_is([*keys, "marginal_is"], data.get("marginal_is"))
         if "rules" not in data:
             self.error(keys, "missing key 'rules'", "list the rules each inspector must meet")
@@ -1098,6 +1107,14 @@ def _parse(
     certification = (
         parser.certification(study.certification) if study.certification is not None else None
     )
+    if criteria is not None and certification is not None:
+        from .certify import loosening_problems
+
+        parser.problems.extend(loosening_problems(study, criteria, certification))
+    if certification is not None or criteria is not None:
+        from .certify import independence_problems
+
+        parser.problems.extend(independence_problems(study))
     return criteria, certification, parser.problems
 
 
@@ -1441,14 +1458,31 @@ def _counts_ok(outcome: str, marginal_is: str) -> bool:
     return outcome == "meets" or (outcome == "marginal" and marginal_is == "pass")
 
 
-def _certify(study: Study, results: Mapping[str, Any], cert: Certification) -> dict[str, Any]:
+def _certify(
+    study: Study,
+    results: Mapping[str, Any],
+    cert: Certification,
+    criteria_checks: Sequence[Mapping[str, Any]] = (),
+    criteria_marginal_is: str = "improve",
+) -> dict[str, Any]:
+    from .certify import criteria_reasons, demonstrability_note, independence_notes
+
     checks = _judge_rules(study, results, cert.rules)
+    for c in checks:
+        c["demonstrable"] = demonstrability_note(c, study.confidence)
     names = {r.id: r.name for r in study.raters}
+    conflicts = independence_notes(study)
     inspectors = []
     for rid in sorted(study.rater_ids):
         mine = [c for c in checks if c["rater"] == rid]
-        ok = bool(mine) and all(_counts_ok(c["outcome"], cert.marginal_is) for c in mine)
-        reasons = []
+        from_criteria = [c for c in criteria_checks if c.get("rater") == rid]
+        criteria_ok = all(_counts_ok(c["outcome"], criteria_marginal_is) for c in from_criteria)
+        ok = (
+            bool(mine)
+            and all(_counts_ok(c["outcome"], cert.marginal_is) for c in mine)
+            and criteria_ok
+        )
+        reasons = criteria_reasons(from_criteria, criteria_marginal_is)
         for c in mine:
             side = "at or above" if c["better"] == "higher" else "at or below"
             basis = {
@@ -1472,6 +1506,9 @@ def _certify(study: Study, results: Mapping[str, Any], cert: Certification) -> d
                 reasons.append(
                     f"{c['label']} {basis} {_fmt(c['value'])} falls short of {_fmt(c['pass'])}"
                 )
+            if c.get("demonstrable"):
+                reasons.append(c["demonstrable"])
+        reasons.extend(n["text"] for n in conflicts if n["rater"] == rid)
         on = study.date if ok else None
         until = valid_until(on, cert.valid_months) if on is not None else None
         inspectors.append(
@@ -1481,6 +1518,11 @@ def _certify(study: Study, results: Mapping[str, Any], cert: Certification) -> d
                 "outcome": "certified" if ok else "not certified",
                 "reasons": reasons,
                 "checks": mine,
+                "criteria_met": criteria_ok,
+                "criteria_checks": [
+                    {k: c[k] for k in ("rule", "measure", "outcome", "value", "pass", "judge")}
+                    for c in from_criteria
+                ],
                 "certified_on": on.isoformat() if on else None,
                 "valid_until": until.isoformat() if until else None,
                 "due_from": (until - dt.timedelta(days=cert.due_window_days)).isoformat()
@@ -1498,6 +1540,8 @@ def _certify(study: Study, results: Mapping[str, Any], cert: Certification) -> d
         "rules": [r.as_record(study.confidence) for r in cert.rules],
         "inspectors": inspectors,
         "cautions": cautions,
+        "criteria_apply": True,
+        "independence": conflicts,
     }
 
 
@@ -1590,7 +1634,17 @@ def judge(study: Study, results: Mapping[str, Any]) -> dict[str, Any]:
             },
             "rules": checks,
         }
-    out["certification"] = _certify(study, results, cert) if cert is not None else None
+    out["certification"] = (
+        _certify(
+            study,
+            results,
+            cert,
+            [c for c in checks if c.get("rater")],
+            criteria.marginal_is if criteria is not None else "improve",
+        )
+        if cert is not None
+        else None
+    )
     out["actions"] = actions(study, results, checks=checks)
     return out
 

@@ -67,6 +67,7 @@ criteria:
   rules:
     - {{measure: accuracy.*.effectiveness, pass: 0.9, marginal: 0.8, judge: estimate}}
 certification:
+  source: "Harness cell qualification HC-QP-1 (invented for the tests)"
   valid_months: 12
   rules:
     - {{measure: accuracy.effectiveness, pass: 0.9, judge: estimate}}

@@ -62,6 +62,7 @@ def study_yaml(
         "ratings: ratings.csv",
         "reference: reference.csv",
         "certification:",
+        '  source: "Qualification rule invented for the tests"',
         f"  valid_months: {valid_months}",
         "  rules: [{measure: accuracy.agreement, pass: 0.9, judge: estimate}]",
     ]

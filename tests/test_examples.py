@@ -163,10 +163,18 @@ def test_passing_study_clears_every_level_with_room() -> None:
 
 
 @pytest.mark.skipif(not HAS_VERDICT, reason="verdict module not there yet")
-def test_seal_check_certifies_only_the_inspector_on_target() -> None:
+def test_seal_check_certifies_no_inspector_a_criterion_rates_short() -> None:
+    # issue 12: INS-A's 5.3 % miss rate is short of the study's own 2 % criterion, so the
+    # certificate it used to get (under a looser 6 % certification rule) is withheld
     _, _, judged = _judged("seal-check")
     outcome = {i["rater"]: i["outcome"] for i in judged["certification"]["inspectors"]}
-    assert outcome == {"INS-A": "certified", "INS-B": "not certified", "INS-C": "not certified"}
+    assert outcome == {
+        "INS-A": "not certified",
+        "INS-B": "not certified",
+        "INS-C": "not certified",
+    }
+    short = {c["rater"] for c in judged["verdict"]["rules"] if c["outcome"] != "meets"}
+    assert short == {"INS-A", "INS-B", "INS-C"}
 
 
 @pytest.fixture(scope="module")

@@ -34,7 +34,16 @@ def _validate_criteria(study: Any, ratings: Any) -> list[Any]:
     if validate is None:
         return []
     if "has_reference" in inspect.signature(validate).parameters:
-        return list(validate(study, None, has_reference=ratings.has_reference))
+        problems = list(validate(study, None, has_reference=ratings.has_reference))
+        load = getattr(importlib.import_module("reportgen.verdict"), "load_criteria", None)
+        if load is not None and not any(
+            getattr(p, "severity", "error") == "error" for p in problems
+        ):
+            from ..certify import demonstrability_problems
+
+            criteria, cert = load(study, None, has_reference=ratings.has_reference)
+            problems += demonstrability_problems(study, ratings, criteria, cert)
+        return problems
     if importlib.util.find_spec("reportgen.analysis") is None:
         return []
     analyse = getattr(importlib.import_module("reportgen.analysis"), "analyse", None)

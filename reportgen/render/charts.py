@@ -95,6 +95,9 @@ def _plt() -> Any:
     matplotlib.use("Agg", force=True)
     import matplotlib.pyplot as plt
 
+    from .svgtext import install
+
+    install()  # each label one <path>, not one <use> per glyph (WeasyPrint draws them faster)
     return plt
 
 
@@ -228,7 +231,9 @@ def _svg(fig: Any) -> bytes:
     import matplotlib.pyplot as plt
 
     plt.close(fig)
-    return buf.getvalue()
+    from .svgtext import flatten_groups
+
+    return flatten_groups(buf.getvalue())
 
 
 def _short(text: str, limit: int = 28) -> str:
