@@ -186,6 +186,7 @@ def svg_text_sizes(svg: bytes, print_width_pt: float) -> list[float]:
     return [
         100 * float(a) * shrink
         for a, b in re.findall(
-            rb'transform="translate\([^)]*\) scale\(([0-9.]+) -([0-9.]+)\)"', svg
+            rb'transform="translate\([^)]*\)(?: rotate\([^)]*\))? scale\(([0-9.]+) -([0-9.]+)\)"',
+            svg,
         )
     ]
