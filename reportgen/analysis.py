@@ -1453,10 +1453,43 @@ def analyse(study: Study, ratings: Ratings, *, progress: Progress | None = None)
     paused = gc.isenabled()
     gc.disable()
     try:
-        return _analyse(study, ratings, progress)
+        results = _analyse(study, ratings, progress)
+        if study.measured is not None:  # measured reference values: measured.py
+            from .measured import measured_results
+
+            results["measured"] = measured_results(study, ratings)
+            _fold_per_trial_warnings(results)
+        return results
     finally:
         if paused:
             gc.enable()
+
+
+def _fold_per_trial_warnings(results: dict[str, Any]) -> None:
+    """Many trials per item are normal with measured references (20 checks per part): the
+    per-trial figures' warnings are folded into one line instead of one per trial."""
+    warnings = results.get("warnings")
+    if not isinstance(warnings, list):
+        return
+    per_trial = [
+        w
+        for w in warnings
+        if isinstance(w, dict) and str(w.get("measure", "")).startswith("reproducibility.by_trial.")
+    ]
+    if not per_trial:
+        return
+    trials = sorted({str(w["measure"]).split(".")[2] for w in per_trial}, key=int)
+    kept = [w for w in warnings if w not in per_trial]
+    kept.append(
+        {
+            "measure": "reproducibility.by_trial",
+            "message": f"{len(per_trial)} warnings on the figures of single trials "
+            f"({len(trials)} of the {results['design']['trials']} trials; for example: "
+            f"{per_trial[0]['message']}) are folded into this line: with many trials per item, "
+            "judge by the figures over all trials.",
+        }
+    )
+    results["warnings"] = kept
 
 
 def _analyse(study: Study, ratings: Ratings, progress: Progress | None) -> dict[str, Any]:

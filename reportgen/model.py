@@ -70,12 +70,15 @@ class Study:
     weights: Literal["linear", "quadratic"] | tuple[tuple[float, ...], ...] = "linear"
     target_half_width: float = 0.10
     safety_related: bool = False
+    #: published scale for the size words of kappa-type coefficients (reportgen.sizewords)
+    size_words: str = "landis-koch-1977"
     criteria: Any = None  # raw mapping from YAML; validated by verdict.py
     certification: Any = None  # raw mapping from YAML; validated by verdict.py
     signoff: SignOff = field(default_factory=SignOff)
     paper: Literal["A4", "letter"] = "A4"
     templates_path: Path | None = None  # study-local template override folder
     plan: Any = None  # raw mapping from YAML; used by plan.py
+    measured: Any = None  # raw measured_reference mapping; validated by measured.py
     #: YAML position of every key, e.g. ("criteria", "rules", 0, "measure") -> Location
     locations: dict[tuple[Any, ...], Location] = field(default_factory=dict, repr=False)
 

@@ -37,11 +37,13 @@ TOP_KEYS = (
     "bootstrap",
     "weights",
     "target_half_width",
+    "size_words",
     "criteria",
     "certification",
     "signoff",
     "report",
     "plan",
+    "measured_reference",
 )
 STUDY_KEYS = (
     "id",
@@ -382,13 +384,17 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
         )
         half_width = 0.10
 
+    from .sizewords import DEFAULT_SCALE, KAPPA_SCALES
+
+    size_words = r.choice(("size_words",), KAPPA_SCALES, default=DEFAULT_SCALE)
+
     r.mapping(("signoff",), SIGNOFF_KEYS)
     signoff = SignOff(*(r.text(("signoff", k)) for k in SIGNOFF_KEYS))
     r.mapping(("report",), REPORT_KEYS)
     paper = r.choice(("report", "paper"), PAPERS, default="A4")
     templates = r.file(("report", "templates"), base=base, what="templates", folder=True)
 
-    raw = {k: r.get((k,)) for k in ("criteria", "certification", "plan")}
+    raw = {k: r.get((k,)) for k in ("criteria", "certification", "plan", "measured_reference")}
     raw = {k: (None if v is _ABSENT else v) for k, v in raw.items()}
 
     r.problems.items.sort(key=lambda p: (p.location.line or 0, p.location.column or 0))
@@ -422,12 +428,14 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
         weights=weights,
         target_half_width=half_width,
         safety_related=safety,
+        size_words=size_words or DEFAULT_SCALE,
         criteria=raw["criteria"],
         certification=raw["certification"],
         signoff=signoff,
         paper=paper,  # type: ignore[arg-type]
         templates_path=templates,
         plan=raw["plan"],
+        measured=raw["measured_reference"],
         locations=dict(doc.locations),
     )
 

@@ -243,6 +243,129 @@ def simulate_nominal(sc: NominalScenario) -> dict[str, list[list[str]]]:
     return out
 
 
+# (d) and (e): measured reference values.  Each item has a measured value; a rater accepts it
+# with a probability that falls off smoothly across the limit (a normal ogive around the
+# rater's own switching point), independently in every trial.
+
+
+@dataclass(frozen=True)
+class MeasuredRater:
+    id: str
+    shift: float  # switching point minus the limit, in the unit of the values
+    spread: float  # standard deviation of the ogive, in the unit (or in log units)
+
+
+@dataclass(frozen=True)
+class MeasuredScenario:
+    folder: str
+    seed: int
+    item_prefix: str
+    values: tuple[float, ...]  # the measured reference values, one per item
+    decimals: int
+    lower: float | None
+    upper: float | None
+    raters: tuple[MeasuredRater, ...]
+    trials: int
+    log_scale: bool = False  # the ogive on log values (flaw sizes)
+
+
+# (d) No-go/go plug gauge on the bore of a pump housing, 12.000-12.018 mm; two setters check
+# each of 16 master-measured bores 20 times.  The gauge's no-go side accepts bores slightly
+# above the upper limit (a worn plug), which the study should show as a bias.
+BORE = MeasuredScenario(
+    folder="bore-plug-gauge",
+    seed=20264,
+    item_prefix="HB",
+    values=(
+        11.9950,
+        11.9978,
+        11.9985,
+        11.9992,
+        11.9999,
+        12.0006,
+        12.0013,
+        12.0045,
+        12.0135,
+        12.0168,
+        12.0175,
+        12.0182,
+        12.0189,
+        12.0196,
+        12.0203,
+        12.0240,
+    ),
+    decimals=4,
+    lower=12.000,
+    upper=12.018,
+    raters=(
+        MeasuredRater("SET-1", shift=0.0003, spread=0.0011),
+        MeasuredRater("SET-2", shift=0.0006, spread=0.0014),
+    ),
+    trials=20,
+)
+
+# (e) Pores in the powder coat of garden-furniture frames: pores of 100 um and more reject
+# the part.  Three inspectors look at 36 marked pores (sizes measured under the microscope)
+# six times each, in shuffled order; inspector V3 tends to overlook small pores.
+PORES = MeasuredScenario(
+    folder="coating-pores",
+    seed=20265,
+    item_prefix="PO-",
+    values=tuple(float(round(20 * (400 / 20) ** (i / 35), 0)) for i in range(36)),
+    decimals=0,
+    lower=None,
+    upper=100.0,
+    raters=(
+        MeasuredRater("V1", shift=-0.05, spread=0.22),
+        MeasuredRater("V2", shift=0.00, spread=0.28),
+        MeasuredRater("V3", shift=0.25, spread=0.30),
+    ),
+    trials=6,
+    log_scale=True,
+)
+
+
+def simulate_measured(sc: MeasuredScenario) -> dict[str, list[list[str]]]:
+    """ratings.csv (ACC/REJ), reference.csv, values.csv and items.csv of one scenario."""
+    from statistics import NormalDist
+
+    rng = np.random.default_rng(sc.seed)
+    n = len(sc.values)
+    ids = _item_ids(sc.item_prefix, n, rng)
+    order = rng.permutation(n)  # item numbers are not in value order
+    values = [sc.values[int(k)] for k in order]
+
+    def ref(v: float) -> str:
+        bad = (sc.lower is not None and v < sc.lower) or (sc.upper is not None and v > sc.upper)
+        return "REJ" if bad else "ACC"
+
+    phi = NormalDist().cdf
+    rows: list[list[str]] = []
+    for r in sc.raters:
+        for t in range(1, sc.trials + 1):
+            for i in rng.permutation(n):
+                v = values[int(i)]
+                p_acc = 1.0
+                if sc.upper is not None:
+                    if sc.log_scale:
+                        p_acc *= phi((np.log(sc.upper) + r.shift - np.log(v)) / r.spread)
+                    else:
+                        p_acc *= phi((sc.upper + r.shift - v) / r.spread)
+                if sc.lower is not None:
+                    p_acc *= phi((v - (sc.lower - r.shift)) / r.spread)
+                call = "ACC" if rng.random() < p_acc else "REJ"
+                rows.append([ids[int(i)], r.id, str(t), call])
+    fmt = f"{{:.{sc.decimals}f}}"
+    by_id = sorted(range(n), key=lambda i: ids[i])
+    return {
+        "ratings.csv": [["item", "rater", "trial", "rating"]] + rows,
+        "reference.csv": [["item", "reference"]] + [[ids[i], ref(values[i])] for i in by_id],
+        "values.csv": [["item", "value"]] + [[ids[i], fmt.format(values[i])] for i in by_id],
+        "items.csv": [["item", "reference", "borderline"]]
+        + [[ids[i], ref(values[i]), "no"] for i in by_id],
+    }
+
+
 def _csv_text(rows: list[list[str]]) -> str:
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
@@ -258,6 +381,9 @@ def generate() -> dict[Path, str]:
             files[HERE / sc.folder / name] = _csv_text(rows)
     for name, rows in simulate_nominal(TRIAGE).items():
         files[HERE / TRIAGE.folder / name] = _csv_text(rows)
+    for msc in (BORE, PORES):
+        for name, rows in simulate_measured(msc).items():
+            files[HERE / msc.folder / name] = _csv_text(rows)
     return files
 
 

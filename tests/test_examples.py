@@ -29,6 +29,8 @@ EXPECTED: dict[str, tuple[str, str, int, int, int, bool, str]] = {
     "finish-grading": ("FINISH-GRADE-DEMO", "ordinal", 48, 4, 2, True, "PASS"),
     "seal-check": ("SEAL-CHECK-DEMO", "binary", 50, 3, 3, True, "IMPROVE"),
     "defect-triage": ("RETURNS-TRIAGE-DEMO", "nominal", 64, 5, 1, False, "IMPROVE"),
+    "bore-plug-gauge": ("BORE-PLUG-GAUGE-DEMO", "binary", 16, 2, 20, True, "IMPROVE"),
+    "coating-pores": ("COATING-PORES-DEMO", "binary", 36, 3, 6, True, "IMPROVE"),
 }
 
 
@@ -56,7 +58,9 @@ def test_every_demo_study_is_expected() -> None:
 
 def test_simulation_regenerates_every_csv_byte_for_byte() -> None:
     files = _simulate_module().generate()
-    assert len(files) == 8  # ratings + items for three studies, reference for two
+    # ratings + items for three studies, reference for two; ratings, reference, values and
+    # items for the two measured-reference studies
+    assert len(files) == 16
     for path, text in files.items():
         assert path.read_bytes() == text.encode("utf-8"), (
             f"{path} differs from what simulate.py makes"

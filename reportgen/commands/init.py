@@ -125,6 +125,7 @@ interval: clopper-pearson       # proportion interval: clopper-pearson | wilson
 bootstrap: {{resamples: 2000, seed: 1}}   # resamples 0 = analytic intervals only
 weights: linear                 # ordinal weighted measures: linear | quadratic | k x k matrix
 target_half_width: 0.10         # planning figure: wanted half-width of the agreement interval
+size_words: landis-koch-1977    # words for kappa sizes: landis-koch-1977 | fleiss-1981 (README)
 
 # Acceptance criteria (see the README, "Acceptance criteria and certification"):
 # criteria:
@@ -134,6 +135,7 @@ target_half_width: 0.10         # planning figure: wanted half-width of the agre
 
 # Inspector certification (per rater figures; same README section):
 # certification:
+#   source: "Inspector qualification procedure, revision"
 #   valid_months: 12
 #   rules:
 #     - {{measure: repeatability.agreement, pass: 0.90, judge: estimate}}
@@ -141,6 +143,7 @@ target_half_width: 0.10         # planning figure: wanted half-width of the agre
 # signoff: {{prepared_by: "", reviewed_by: "", approved_by: ""}}
 # report: {{paper: A4}}          # A4 | letter
 # plan: {{seed: 7}}              # used by `reportgen plan`
+# measured_reference: {{file: values.csv, unit: mm, lower_limit: 9.98, upper_limit: 10.02}}  # item,value file; see README
 """
 
 

@@ -142,6 +142,13 @@ class ReportContext:
     interval_text: str = _help(
         "How intervals were computed, with level, method, resamples and seed (one paragraph)."
     )
+    size_words: list[dict[str, str]] = _help(
+        "Published scales used for the size words of coefficients: {scale, applies_to, "
+        "cut_points, source}; with size_words_note saying the words are conventions."
+    )
+    size_words_note: str = _help(
+        "One sentence: the size words are conventions of the named scales; the criteria decide."
+    )
     repeatability: list[dict[str, Any]] = _help(
         "Per rater (absent when there is one trial): {rater (rater dict), mixed_calls, items, measures: "
         "[{key, name, m, reading}]}."
@@ -659,6 +666,19 @@ def _method(results: Mapping[str, Any]) -> list[dict[str, Any]]:
     return out
 
 
+def _keys_present(results: Mapping[str, Any]) -> frozenset[str]:
+    """Measure keys present anywhere in the per-rater, panel and reproducibility figures."""
+    keys: set[str] = set()
+    for group in ("repeatability", "accuracy"):
+        for e in (results.get(group) or {}).values():
+            if isinstance(e, Mapping):
+                keys |= {k for k, v in e.items() if _is_record(v)}
+    for group in ("reproducibility", "panel_accuracy"):
+        e = results.get(group) or {}
+        keys |= {k for k, v in e.items() if _is_record(v) or k == "fleiss_kappa_by_category"}
+    return frozenset(keys)
+
+
 def _interval_text(study: Study, results: Mapping[str, Any]) -> str:
     level = f"{100 * study.confidence:g} %"
     prop = (
@@ -1037,6 +1057,10 @@ def build_context(
 
     ``plan`` is the study's plan summary (:func:`reportgen.plan.find_plan_summary`), if any.
     """
+    from ..sizewords import CONVENTION_TEXT, statement
+    from .readings import SIZE_SCALE
+
+    SIZE_SCALE.set(study.size_words)  # the readings below use the study's scale
     raters = rater_dicts(study)
     criteria = criteria_view(results)
     study_view = study_dict(study, ratings)
@@ -1122,6 +1146,8 @@ def build_context(
         method=method,
         conventions=conventions,
         interval_text=_interval_text(study, results),
+        size_words=statement(study.size_words, frozenset(MEASURES) & _keys_present(results)),
+        size_words_note=CONVENTION_TEXT,
         repeatability=repeat,
         accuracy=acc,
         reproducibility=_rows(repro_raw, REPRO_ORDER),

@@ -79,6 +79,23 @@ def make_fetcher(root: Path | None = None) -> Any:
     return SafeFetcher(fail_on_errors=True)
 
 
+_FONT_CONFIG: Any = None
+
+
+def shared_font_config() -> Any:
+    """One WeasyPrint ``FontConfiguration`` per process, so that the shipped fonts named in
+    ``@font-face`` rules are read and registered with fontconfig once, not once per document
+    (a plan renders a PDF per run sheet, ``demo`` a report per study).  WeasyPrint keys each
+    face by its descriptors, which include the URL, so a face is only reused for the same file;
+    the PDFs are byte for byte those of a fresh configuration (tests/render/test_pdf_fonts.py)."""
+    global _FONT_CONFIG
+    if _FONT_CONFIG is None:
+        from weasyprint.text.fonts import FontConfiguration
+
+        _FONT_CONFIG = FontConfiguration()
+    return _FONT_CONFIG
+
+
 class _Collect(logging.Handler):
     def __init__(self) -> None:
         super().__init__(logging.WARNING)
@@ -123,7 +140,7 @@ def render_pdf(
         root = base_url or asset_root()
         doc = weasyprint.HTML(
             string=html, base_url=root.as_uri() + "/", url_fetcher=fetcher
-        ).render()
+        ).render(font_config=shared_font_config())
         atts = [
             weasyprint.Attachment(
                 string=a.data,

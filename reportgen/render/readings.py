@@ -1,40 +1,40 @@
 """One-line plain-words readings of a figure, shown beside every number in the report.
 
 Each reading takes a results record ``M`` (estimate, interval, counts) and says what it means
-for someone who is not a statistician.  The words for chance-corrected coefficients are our
-own plain bands (not a published scale): they describe, the criteria decide.
+for someone who is not a statistician.  The words for a coefficient's size come from the
+published scale the study names (``size_words``, Landis & Koch 1977 by default; Krippendorff 2004
+for alpha; see :mod:`reportgen.sizewords`), or are left out where no such scale applies (Kendall's
+W, tau-b): they describe, the criteria decide.
 """
 
 from __future__ import annotations
 
 from collections.abc import Mapping
+from contextvars import ContextVar
 from typing import Any
 
+from ..sizewords import DEFAULT_SCALE, band, scale_for
 from .filters import _value, fmt_int, fmt_pct
 
+#: the study's scale for kappa-type size words, set by the report context builder
+SIZE_SCALE: ContextVar[str] = ContextVar("size_scale", default=DEFAULT_SCALE)
 
-def _short_band(v: float) -> str:
-    if v < 0:
-        return "worse than chance"
-    if v < 0.2:
-        return "chance level"
-    if v < 0.4:
-        return "weak"
-    if v < 0.6:
-        return "moderate"
-    if v < 0.8:
-        return "good"
-    if v < 1.0:
-        return "very good"
-    return "perfect"
+SCALE_SHORT = {
+    "landis-koch-1977": "Landis & Koch 1977",
+    "fleiss-1981": "Fleiss 1981",
+    "krippendorff-2004": "Krippendorff 2004",
+}
 
 
-def _spread(m: Mapping[str, Any]) -> str:
+def _spread(m: Mapping[str, Any], key: str) -> str:
     """What the interval says, in words (the numbers are in the interval column)."""
     lo, hi = _value(m, "ci_low"), _value(m, "ci_high")
+    scale = scale_for(key, SIZE_SCALE.get())
     if lo is None or hi is None:
         return "; no interval"
-    a, b = _short_band(lo), _short_band(hi)
+    if scale is None:
+        return ""
+    a, b = band(lo, scale), band(hi, scale)
     return "; the interval stays in that band" if a == b else f"; the interval spans {a} to {b}"
 
 
@@ -56,28 +56,21 @@ def read_proportion(m: Any, what: str = "items agree") -> str:
     return f"{count} ({fmt_pct(m)})"
 
 
-def chance_band(v: float) -> str:
-    if v < 0:
-        return "less agreement than chance alone would give"
-    if v < 0.2:
-        return "hardly more agreement than chance"
-    if v < 0.4:
-        return "weak agreement beyond chance"
-    if v < 0.6:
-        return "moderate agreement beyond chance"
-    if v < 0.8:
-        return "good agreement beyond chance"
-    if v < 1.0:
-        return "very good agreement beyond chance"
-    return "perfect agreement"
+def size_text(v: float, key: str) -> str:
+    """ "substantial (Landis & Koch 1977)", or the absence of a published scale said plainly."""
+    scale = scale_for(key, SIZE_SCALE.get())
+    if scale is None:
+        return "no size word (no published scale is applied to this coefficient)"
+    lead = "below chance agreement; " if v < 0 and scale.family == "kappa" else ""
+    return f"{lead}{band(v, scale)} ({SCALE_SHORT[scale.name]})"
 
 
-def read_coefficient(m: Any) -> str:
-    """Reading of a chance-corrected coefficient (kappa, alpha, AC1 …)."""
+def read_coefficient(m: Any, key: str = "cohen_kappa") -> str:
+    """Reading of a chance-corrected coefficient (kappa, alpha, AC1 …) on the study's scale."""
     u = _undefined(m)
     if u:
         return u
-    return chance_band(float(_value(m) or 0.0)) + _spread(m)
+    return size_text(float(_value(m) or 0.0), key) + _spread(m, key)
 
 
 def read_rate(m: Any, kind: str = "miss") -> str:
@@ -117,10 +110,8 @@ def read_rank(m: Any) -> str:
     if u:
         return u
     v = float(_value(m) or 0.0)
-    word = (
-        "strong" if v >= 0.7 else "moderate" if v >= 0.4 else "weak" if v >= 0.1 else "little or no"
-    )
-    return f"{word} agreement on the order of the items"
+    side = "the same" if v > 0 else "the opposite" if v < 0 else "no common"
+    return f"{side} order of the items, by sign; no size word (no published scale is applied)"
 
 
 def read_measure(m: Any, key: str) -> str:
@@ -139,7 +130,7 @@ def read_measure(m: Any, key: str) -> str:
         return read_rate(m, "false_alarm")
     if key in ("kendall_w", "kendall_tau_b"):
         return read_rank(m)
-    return read_coefficient(m)
+    return read_coefficient(m, key)
 
 
 READINGS = {

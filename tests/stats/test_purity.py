@@ -19,13 +19,15 @@ def _discover() -> list[str]:
 
 
 MODULES = _discover()
+#: modules outside the package held to the same rule
+ALSO = ["reportgen.measured"]  # measured.py: numpy and the stats core only
 FORBIDDEN = ["pandas", "jinja2", "matplotlib", "weasyprint", "scipy", "statsmodels", "sklearn"]
 
 
 def test_importing_the_stats_core_pulls_in_no_heavy_packages() -> None:
     code = (
         "import sys, json\n"
-        + "".join(f"import {m}\n" for m in MODULES)
+        + "".join(f"import {m}\n" for m in MODULES + ALSO)
         + f"print(json.dumps(sorted(m for m in {FORBIDDEN!r} if m in sys.modules)))\n"
     )
     out = subprocess.run(
