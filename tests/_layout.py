@@ -149,7 +149,9 @@ def stranded_headings(
 ) -> list[str]:
     """Pages whose last body line is a heading, a table caption or a glossary term (or the end
     of one that wraps). The last page is exempt: nothing follows it."""
-    heads = [_norm(h) for h in headings if len(_norm(h)) >= 2]
+    # one-word terms ("reference") also end ordinary lines of table cells: headings of two or
+    # more words only
+    heads = [_norm(h) for h in headings if len(_norm(h).split()) >= 2]
     found: list[str] = []
     for page in pages[:-1]:
         lines = [_norm(x) for x in body_lines(page, top, bottom)]
