@@ -1562,6 +1562,9 @@ def _analyse(study: Study, ratings: Ratings, progress: Progress | None) -> dict[
 
     if d.ref is not None:
         results["panel_accuracy"] = _panel_accuracy(d, col)
+        from .repeated import apply as _item_unit_rates
+
+        _item_unit_rates(d.codes, d.ref, d.defect, d.raters, d.level, results)
 
     if d.ordinal:
         say("ordered-scale agreement")

@@ -635,19 +635,50 @@ def list_entries(
     """Archived revisions, oldest first (study date, then study id, revision, archived-at)."""
     conn = open_index(Path(root), create=False)
     try:
-        sql = "SELECT * FROM revisions WHERE 1=1"
-        args: list[Any] = []
-        for col, val in (
-            ("characteristic", characteristic),
-            ("station", station),
-            ("study_id", study_id),
-        ):
-            if val is not None:
-                sql += f" AND {col} = ? COLLATE NOCASE"
-                args.append(val)
-        rows = conn.execute(sql, args).fetchall()
+        with damaged_index(Path(root)):
+            return _list_entries(conn, characteristic, station, study_id)
     finally:
         conn.close()
+
+
+@contextlib.contextmanager
+def damaged_index(root: Path) -> Iterator[None]:
+    """Turn a damaged index (a corrupted page, a row that does not decode) into InputError."""
+    try:
+        yield
+    except sqlite3.OperationalError as exc:
+        if "locked" in str(exc) or "busy" in str(exc):
+            raise
+        raise InputError.single(
+            root / INDEX_NAME,
+            f"the archive index cannot be read: {exc}",
+            hint="restore index.sqlite from a backup; the archived folders are unchanged",
+        ) from None
+    except (sqlite3.DatabaseError, ValueError, TypeError, KeyError) as exc:
+        raise InputError.single(
+            root / INDEX_NAME,
+            f"the archive index is damaged: {type(exc).__name__}: {exc}",
+            hint="restore index.sqlite from a backup; the archived folders are unchanged",
+        ) from None
+
+
+def _list_entries(
+    conn: sqlite3.Connection,
+    characteristic: str | None,
+    station: str | None,
+    study_id: str | None,
+) -> list[ArchiveEntry]:
+    sql = "SELECT * FROM revisions WHERE 1=1"
+    args: list[Any] = []
+    for col, val in (
+        ("characteristic", characteristic),
+        ("station", station),
+        ("study_id", study_id),
+    ):
+        if val is not None:
+            sql += f" AND {col} = ? COLLATE NOCASE"
+            args.append(val)
+    rows = conn.execute(sql, args).fetchall()
     entries = [ArchiveEntry.from_row(r) for r in rows]
     return sorted(
         entries,
@@ -840,7 +871,6 @@ def archive_revision(
     removed.  Archiving a revision that is archived already with the very same files (a re-run
     after an interruption) returns its entry.
     """
-    from . import __version__
 
     say = progress or (lambda _msg: None)
     built = read_built_revision(revision_dir)
@@ -849,103 +879,115 @@ def archive_revision(
         raise InputError.single(revision_dir, "this folder is inside the archive already")
     conn = open_index(root, create=True)
     try:
-        with _write_transaction(conn):
-            for msg in recover(conn, root):
-                say(msg)
-        same = _same_as_archived(conn, root, built)
-        if same is not None:
-            say(f"{built.study_id} rev{built.revision} is archived already with these very files")
-            return same
-        with _write_transaction(conn):
-            _refuse_existing(conn, root, built)
-        stamp = (now or _utc_now()).astimezone(dt.UTC).replace(microsecond=0)
-        facts = built.facts
-        verdict = built.results.get("verdict")
-        if isinstance(verdict, dict):
-            verdict = verdict.get("outcome", verdict.get("verdict"))
-        items = item_ids(built.results)
-        entry = ArchiveEntry(
-            study_id=built.study_id,
-            revision=built.revision,
-            title=facts.get("title"),
-            study_date=facts.get("date"),
-            characteristic=facts.get("characteristic"),
-            station=facts.get("station"),
-            scale=facts.get("scale"),
-            verdict=str(verdict) if verdict is not None else None,
-            figures={**main_figures(built.results), "names": dict(facts.get("raters") or {})},
-            certification=certification_summary(built.results, facts),
-            items=items,
-            item_set_sha256=item_set_digest(items),
-            files=built.files,
-            inputs=built.inputs,
-            software_version=software_version(built.results) or _built_with(built.pdf),
-            archiver_version=__version__,
-            archived_at=stamp.strftime("%Y-%m-%dT%H:%M:%SZ"),
-            folder=f"{built.study_id}/rev{built.revision}",
-        )
-        study_dir = root / built.study_id
-        study_dir.mkdir(parents=True, exist_ok=True)
-        partial = study_dir / (
-            f"{PARTIAL_PREFIX}rev{built.revision}-{socket.gethostname()}-{os.getpid()}-{secrets.token_hex(4)}"
-        )
-        entry_json = json.dumps(entry.__dict__, indent=2, sort_keys=True) + "\n"
-        with _write_transaction(conn):
-            _refuse_existing(conn, root, built)
-            conn.execute(
-                "INSERT INTO pending (folder, partial, entry, started_at) VALUES (?, ?, ?, ?)",
-                (entry.folder, partial.relative_to(root).as_posix(), entry_json, entry.archived_at),
-            )
-        _test_pause("pending")
-        partial.mkdir()
-        try:
-            for n, (rel, digest) in enumerate(built.files.items()):
-                _copy_file(built.path / rel, partial / rel, digest)
-                say(f"copied {rel}")
-                if n == 0:
-                    _test_pause("copy")
-            entry_path = partial / ENTRY_NAME
-            entry_path.write_text(entry_json, encoding="utf-8")
-            with open(entry_path, "rb") as f:
-                os.fsync(f.fileno())
-            os.chmod(entry_path, 0o444)
-            for d in sorted(
-                (p for p in partial.rglob("*") if p.is_dir()), key=lambda p: -len(p.parts)
-            ):
-                _fsync_dir(d)
-                os.chmod(d, 0o555)
-            _fsync_dir(partial)
-            os.chmod(partial, 0o555)
-            _test_pause("entry")
-            final = study_dir / f"rev{built.revision}"
-            with _write_transaction(conn):
-                _refuse_existing(conn, root, built, own_pending=entry.folder)
-                os.rename(partial, final)
-                _fsync_dir(study_dir)
-                _test_pause("rename")
-                _test_pause("commit")
-                bad = _folder_differences(final, entry)  # after the copy: what was hashed?
-                if bad:
-                    raise InputError.single(
-                        final,
-                        "the archived copy does not match the files that were checked: "
-                        + "; ".join(bad[:5]),
-                        hint="run archive again; if it persists, check the disk",
-                    )
-                _insert(conn, entry)
-                conn.execute("DELETE FROM pending WHERE folder = ?", (entry.folder,))
-                _test_pause("insert")
-        except BaseException:
-            if partial.exists():
-                _remove_partial(partial)
-            with contextlib.suppress(sqlite3.Error), _write_transaction(conn):
-                conn.execute(
-                    "DELETE FROM pending WHERE folder = ? AND partial = ?",
-                    (entry.folder, partial.relative_to(root).as_posix()),
-                )
-            raise
+        with damaged_index(root):
+            return _archive(conn, root, built, now=now, say=say)
     finally:
         conn.close()
+
+
+def _archive(
+    conn: sqlite3.Connection,
+    root: Path,
+    built: BuiltRevision,
+    *,
+    now: dt.datetime | None,
+    say: Callable[[str], None],
+) -> ArchiveEntry:
+    from . import __version__
+
+    with _write_transaction(conn):
+        for msg in recover(conn, root):
+            say(msg)
+    same = _same_as_archived(conn, root, built)
+    if same is not None:
+        say(f"{built.study_id} rev{built.revision} is archived already with these very files")
+        return same
+    with _write_transaction(conn):
+        _refuse_existing(conn, root, built)
+    stamp = (now or _utc_now()).astimezone(dt.UTC).replace(microsecond=0)
+    facts = built.facts
+    verdict = built.results.get("verdict")
+    if isinstance(verdict, dict):
+        verdict = verdict.get("outcome", verdict.get("verdict"))
+    items = item_ids(built.results)
+    entry = ArchiveEntry(
+        study_id=built.study_id,
+        revision=built.revision,
+        title=facts.get("title"),
+        study_date=facts.get("date"),
+        characteristic=facts.get("characteristic"),
+        station=facts.get("station"),
+        scale=facts.get("scale"),
+        verdict=str(verdict) if verdict is not None else None,
+        figures={**main_figures(built.results), "names": dict(facts.get("raters") or {})},
+        certification=certification_summary(built.results, facts),
+        items=items,
+        item_set_sha256=item_set_digest(items),
+        files=built.files,
+        inputs=built.inputs,
+        software_version=software_version(built.results) or _built_with(built.pdf),
+        archiver_version=__version__,
+        archived_at=stamp.strftime("%Y-%m-%dT%H:%M:%SZ"),
+        folder=f"{built.study_id}/rev{built.revision}",
+    )
+    study_dir = root / built.study_id
+    study_dir.mkdir(parents=True, exist_ok=True)
+    partial = study_dir / (
+        f"{PARTIAL_PREFIX}rev{built.revision}-{socket.gethostname()}-{os.getpid()}-{secrets.token_hex(4)}"
+    )
+    entry_json = json.dumps(entry.__dict__, indent=2, sort_keys=True) + "\n"
+    with _write_transaction(conn):
+        _refuse_existing(conn, root, built)
+        conn.execute(
+            "INSERT INTO pending (folder, partial, entry, started_at) VALUES (?, ?, ?, ?)",
+            (entry.folder, partial.relative_to(root).as_posix(), entry_json, entry.archived_at),
+        )
+    _test_pause("pending")
+    partial.mkdir()
+    try:
+        for n, (rel, digest) in enumerate(built.files.items()):
+            _copy_file(built.path / rel, partial / rel, digest)
+            say(f"copied {rel}")
+            if n == 0:
+                _test_pause("copy")
+        entry_path = partial / ENTRY_NAME
+        entry_path.write_text(entry_json, encoding="utf-8")
+        with open(entry_path, "rb") as f:
+            os.fsync(f.fileno())
+        os.chmod(entry_path, 0o444)
+        for d in sorted((p for p in partial.rglob("*") if p.is_dir()), key=lambda p: -len(p.parts)):
+            _fsync_dir(d)
+            os.chmod(d, 0o555)
+        _fsync_dir(partial)
+        os.chmod(partial, 0o555)
+        _test_pause("entry")
+        final = study_dir / f"rev{built.revision}"
+        with _write_transaction(conn):
+            _refuse_existing(conn, root, built, own_pending=entry.folder)
+            os.rename(partial, final)
+            _fsync_dir(study_dir)
+            _test_pause("rename")
+            _test_pause("commit")
+            bad = _folder_differences(final, entry)  # after the copy: what was hashed?
+            if bad:
+                raise InputError.single(
+                    final,
+                    "the archived copy does not match the files that were checked: "
+                    + "; ".join(bad[:5]),
+                    hint="run archive again; if it persists, check the disk",
+                )
+            _insert(conn, entry)
+            conn.execute("DELETE FROM pending WHERE folder = ?", (entry.folder,))
+            _test_pause("insert")
+    except BaseException:
+        if partial.exists():
+            _remove_partial(partial)
+        with contextlib.suppress(sqlite3.Error), _write_transaction(conn):
+            conn.execute(
+                "DELETE FROM pending WHERE folder = ? AND partial = ?",
+                (entry.folder, partial.relative_to(root).as_posix()),
+            )
+        raise
     _test_pause("done")
     return entry
 

@@ -148,4 +148,26 @@ def design_warnings(study: Study, ratings: Ratings) -> list[dict[str, str]]:
                 "message": "only 1 trial: repeatability (each rater against their own other trials) cannot be measured",
             }
         )
+    out += shared_name_warnings(study)
     return out
+
+
+def shared_name_warnings(study: Study) -> list[dict[str, str]]:
+    """Two rater ids with one name (Unicode NFC, case and spacing aside): the register keeps
+    them as two people, and a reader of the report may not."""
+    import unicodedata
+
+    by_name: dict[str, list[str]] = {}
+    for r in study.raters:
+        key = " ".join(unicodedata.normalize("NFC", r.name).split()).casefold()
+        by_name.setdefault(key, []).append(r.id)
+    return [
+        {
+            "kind": "shared-name",
+            "message": f"raters {', '.join(ids)} share the name "
+            f"{next(r.name for r in study.raters if r.id == ids[0])!r}; the register keeps them "
+            "as different people (by rater id) — give each a distinguishing name if they are",
+        }
+        for ids in by_name.values()
+        if len(ids) > 1
+    ]

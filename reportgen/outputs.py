@@ -96,3 +96,21 @@ def refuse_foreign_file(path: Path) -> None:
             f"{path} exists and was not written by reportgen; it is never replaced — choose "
             "another file name, or move that file away"
         )
+
+
+def check_output_folder(folder: Path, *, key: str = "--output") -> None:
+    """InputError when the output folder exists as something other than a folder (``/dev/null``,
+    a file), or lies under a file."""
+    p = Path(folder)
+    for step in (p, *p.parents):
+        if os.path.lexists(step):
+            if not step.is_dir():
+                what = (
+                    "is not a folder (a file or a device)"
+                    if step == p
+                    else f"lies under {step}, which is not a folder"
+                )
+                raise InputError.single(
+                    p, f"this output path {what}; give a folder to write into", key=key
+                )
+            return

@@ -219,9 +219,12 @@ def read_table(
         raise InputError.single(
             shown, f"{what} file is {size:,} bytes; the limit is {MAX_TABLE_BYTES:,}"
         )
+    from .safeio import read_limited, require_regular
+
+    require_regular(p, shown=shown, what=what)  # a FIFO or device is refused before reading
     if p.suffix.lower() == ".xlsx":
         return _read_xlsx(p, shown, sheet, what)
-    raw = p.read_bytes()
+    raw = read_limited(p, MAX_TABLE_BYTES, shown=shown, what=what)
     digest = hashlib.sha256(raw).hexdigest()
     text, encoding, notes = _decode(raw, shown)
     if not text.strip().strip("\ufeff"):

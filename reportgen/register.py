@@ -1,13 +1,16 @@
 """The register of inspectors: who is certified for which characteristic, and until when.
 
-Built from the archive index only.  For every inspector and characteristic the latest archived
-study in which the inspector took part decides (latest = study date, then revision, then
-archived-at); a failed requalification therefore ends an earlier certification.  Inspectors are
-matched across studies by name (rater ids are codes local to one study).
+Built from the archive index only.  A line is one rater (by rater id) in one study (all its
+archived revisions and rounds ``<id>.round<N>``: its requalifications); two raters sharing a name stay two
+lines.  Names are shown as given, in Unicode NFC.  On a given day only the rounds assessed on or
+before that day count, and the latest of them decides (latest = study date, then revision, then
+archived-at); a failed requalification therefore ends an earlier certification.
 
 Status on a given day (``as_of``), with ``due_within`` days of warning:
 
-* ``not certified`` — the latest study did not certify the inspector;
+* ``not yet certified`` — every round of the study that includes the inspector lies after
+  ``as_of``;
+* ``not certified`` — the latest round on or before ``as_of`` did not certify the inspector;
 * ``expired``       — the certification ended before ``as_of``;
 * ``due``           — it ends within ``due_within`` days (requalify soon);
 * ``valid``         — otherwise.
@@ -20,15 +23,17 @@ from __future__ import annotations
 import csv
 import datetime as dt
 import io
+import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Literal
 
 from .archive import ArchiveEntry, list_entries
+from .rounds import split_round
 
-Status = Literal["valid", "due", "expired", "not certified"]
-STATUSES: tuple[Status, ...] = ("valid", "due", "expired", "not certified")
+Status = Literal["valid", "due", "expired", "not certified", "not yet certified"]
+STATUSES: tuple[Status, ...] = ("valid", "due", "expired", "not certified", "not yet certified")
 #: what ``--fail-on`` matches: ``due`` also matches expired certifications
 FAIL_ON: dict[str, frozenset[str]] = {
     "expired": frozenset({"expired"}),
@@ -96,7 +101,11 @@ def status_on(
 
 
 def _key(text: str) -> str:
-    return " ".join(text.split()).casefold()
+    return " ".join(unicodedata.normalize("NFC", text).split()).casefold()
+
+
+def _nfc(text: str) -> str:
+    return unicodedata.normalize("NFC", text)
 
 
 def build_register(
@@ -105,23 +114,42 @@ def build_register(
     as_of: dt.date,
     due_within: int | None = None,
 ) -> Register:
-    """The register on ``as_of`` from archived revisions (any order)."""
-    latest: dict[tuple[str, str], tuple[tuple[Any, ...], ArchiveEntry, str, dict[str, Any]]] = {}
+    """The register on ``as_of`` from archived revisions (any order); see the module docstring."""
+    rounds: dict[tuple[str, str], list[tuple[tuple[Any, ...], ArchiveEntry, str, dict[str, Any]]]]
+    rounds = {}
     for e in entries:
-        characteristic = e.characteristic or f"study {e.study_id}"
         for rid, c in e.certification.items():
             if not isinstance(c, dict):
                 continue
-            name = str(c.get("name") or rid)
-            when = c.get("assessed_on") or e.study_date or e.archived_at[:10]
-            if str(when)[:10] > as_of.isoformat():
-                continue  # a later round: not yet evidence on the day asked for
-            rank = (when, e.revision, e.archived_at, e.study_id)
-            k = (_key(name), _key(characteristic))
-            if k not in latest or rank > latest[k][0]:
-                latest[k] = (rank, e, rid, c)
+            when = str(c.get("assessed_on") or e.study_date or e.archived_at[:10])
+            rank = (when, e.revision, e.archived_at)
+            # all rounds of one study (``<id>``, ``<id>.round2`` …) and their revisions
+            series = split_round(e.study_id)[0]
+            rounds.setdefault((series, str(rid)), []).append((rank, e, str(rid), c))
     lines = []
-    for (_n, _c), (rank, e, rid, c) in latest.items():
+    for (_study, _rid), found in rounds.items():
+        found.sort(key=lambda x: x[0])
+        before = [x for x in found if _day(x[0][0]) is not None and _day(x[0][0]) <= as_of]
+        if not before:
+            rank, e, rid, c = found[0]
+            lines.append(
+                RegisterLine(
+                    inspector=_nfc(str(c.get("name") or rid)),
+                    characteristic=e.characteristic or f"study {e.study_id}",
+                    station=e.station,
+                    outcome="not yet assessed",
+                    assessed_on=None,
+                    certified_on=None,
+                    valid_until=None,
+                    status="not yet certified",
+                    days_left=None,
+                    study_id=e.study_id,
+                    revision=e.revision,
+                    rater_id=rid,
+                )
+            )
+            continue
+        rank, e, rid, c = before[-1]
         window = due_within if due_within is not None else int(c.get("due_window_days") or 30)
         status, left = status_on(
             outcome=str(c.get("outcome")),
@@ -131,7 +159,7 @@ def build_register(
         )
         lines.append(
             RegisterLine(
-                inspector=str(c.get("name") or rid),
+                inspector=_nfc(str(c.get("name") or rid)),
                 characteristic=e.characteristic or f"study {e.study_id}",
                 station=e.station,
                 outcome=str(c.get("outcome")),
@@ -145,8 +173,41 @@ def build_register(
                 rater_id=rid,
             )
         )
-    lines.sort(key=lambda ln: (_key(ln.inspector), _key(ln.characteristic)))
+    lines.sort(
+        key=lambda ln: (_key(ln.inspector), _key(ln.characteristic), ln.study_id, ln.rater_id)
+    )
     return Register(as_of=as_of, due_within=due_within, lines=tuple(lines))
+
+
+def _day(text: str) -> dt.date | None:
+    try:
+        return dt.date.fromisoformat(text[:10])
+    except ValueError:
+        return None
+
+
+def shared_names(reg: Register) -> list[str]:
+    """Names two or more rater ids share within one characteristic (said under the table)."""
+    seen: dict[tuple[str, str], set[tuple[str, str]]] = {}
+    for ln in reg.lines:
+        seen.setdefault((_key(ln.inspector), _key(ln.characteristic)), set()).add(
+            (split_round(ln.study_id)[0], ln.rater_id)
+        )
+    out = []
+    for (_name, _char), ids in sorted(seen.items()):
+        studies = {s for s, _r in ids}
+        if len(ids) > 1 and len(studies) < len(ids):
+            line = next(
+                ln
+                for ln in reg.lines
+                if (_key(ln.inspector), _key(ln.characteristic)) == (_name, _char)
+            )
+            out.append(
+                f"{line.inspector} ({line.characteristic}): rater ids "
+                + ", ".join(sorted(f"{r} in {s}" for s, r in ids))
+                + " share this name; they are kept as different people"
+            )
+    return out
 
 
 def load_register(
@@ -212,18 +273,42 @@ def format_table(reg: Register) -> str:
         f"Register on {reg.as_of.isoformat()} (due = ends within {window}): "
         + ", ".join(f"{counts[s]} {s}" for s in STATUSES)
     )
+    for note in shared_names(reg):
+        out.append(f"note: {note}")
     if not rows:
         out.insert(0, "No certifications in the archive.")
     return "\n".join(out) + "\n"
+
+
+#: a text cell starting with one of these is read as a formula by spreadsheet programs
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def safe_cell(value: Any) -> Any:
+    """A text cell that a spreadsheet would run as a formula gets a leading apostrophe;
+    numbers are kept as they are."""
+    if isinstance(value, str) and value.startswith(FORMULA_STARTS):
+        return "'" + value
+    return value
+
+
+def csv_rows(reg: Register, *, safe: bool = True) -> list[dict[str, str]]:
+    """The register's rows as text by CSV column; ``safe`` writes formula-like cells safely."""
+    rows = []
+    for ln in reg.lines:
+        d = asdict(ln)
+        rows.append(
+            {c: "" if d[c] is None else str(safe_cell(d[c]) if safe else d[c]) for c in CSV_COLUMNS}
+        )
+    return rows
 
 
 def to_csv(reg: Register) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(CSV_COLUMNS)
-    for ln in reg.lines:
-        d = asdict(ln)
-        w.writerow(["" if d[c] is None else d[c] for c in CSV_COLUMNS])
+    for row in csv_rows(reg):
+        w.writerow([row[c] for c in CSV_COLUMNS])
     return buf.getvalue()
 
 

@@ -70,6 +70,14 @@ PAPERS = ("A4", "letter")
 TABLE_SUFFIXES = (".csv", ".txt", ".tsv", ".xlsx")
 #: codes are stored as int8 in Ratings.codes, -1 meaning missing
 MAX_CATEGORIES = 100
+#: most bootstrap resamples a study may ask (memory grows with them; 2,000 is the default and
+#: 10,000 is plenty for a 95 % interval's second digit)
+MAX_RESAMPLES = 100_000
+#: most trials per rater a study may declare
+MAX_TRIALS = 100
+#: dates a study may carry (a certification's valid-until must still be a date)
+MIN_DATE = dt.date(1900, 1, 1)
+MAX_DATE = dt.date(2999, 12, 31)
 STUDY_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]*$")
 #: longest study id: it names folders and files, and file names are limited to 255 bytes
 MAX_STUDY_ID = 100
@@ -175,7 +183,14 @@ class _Reader:
             return None
         return text
 
-    def integer(self, keys: KeyPath, *, default: int, minimum: int | None = None) -> int:
+    def integer(
+        self,
+        keys: KeyPath,
+        *,
+        default: int,
+        minimum: int | None = None,
+        maximum: int | None = None,
+    ) -> int:
         value = self.get(keys)
         if value is _ABSENT or value is None:
             return default
@@ -184,6 +199,9 @@ class _Reader:
             return default
         if minimum is not None and value < minimum:
             self.error(keys, f"must be at least {minimum}, got {value}")
+            return default
+        if maximum is not None and value > maximum:
+            self.error(keys, f"must be at most {maximum:,}, got {value:,}")
             return default
         return value
 
@@ -348,7 +366,7 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
             )
 
     raters = _raters(r)
-    trials = r.integer(("trials",), default=1, minimum=1)
+    trials = r.integer(("trials",), default=1, minimum=1, maximum=MAX_TRIALS)
     if r.get(("trials",)) is _ABSENT:
         r.missing(("trials",))
 
@@ -369,7 +387,9 @@ def load_study(path: str | os.PathLike[str], *, require_inputs: bool = True) -> 
     interval = r.choice(("interval",), INTERVALS, default="clopper-pearson")
 
     r.mapping(("bootstrap",), BOOTSTRAP_KEYS)
-    resamples = r.integer(("bootstrap", "resamples"), default=2000, minimum=0)
+    resamples = r.integer(
+        ("bootstrap", "resamples"), default=2000, minimum=0, maximum=MAX_RESAMPLES
+    )
     seed = r.integer(("bootstrap", "seed"), default=1, minimum=0)
 
     weights = _weights(r, len(categories))
@@ -444,17 +464,27 @@ def _date(r: _Reader, keys: KeyPath) -> dt.date | None:
     value = r.get(keys)
     if value is _ABSENT or value is None:
         return None
+    got: dt.date | None = None
     if isinstance(value, dt.datetime):
-        return value.date()
-    if isinstance(value, dt.date):
-        return value
-    if isinstance(value, str):
+        got = value.date()
+    elif isinstance(value, dt.date):
+        got = value
+    elif isinstance(value, str):
         try:
-            return dt.date.fromisoformat(value.strip())
+            got = dt.date.fromisoformat(value.strip())
         except ValueError:
             pass
-    r.error(keys, f"must be a date written YYYY-MM-DD, got {r._shown(keys, value)}")
-    return None
+    if got is None:
+        r.error(keys, f"must be a date written YYYY-MM-DD, got {r._shown(keys, value)}")
+        return None
+    if not MIN_DATE <= got <= MAX_DATE:
+        r.error(
+            keys,
+            f"{got.isoformat()} is outside the dates accepted ({MIN_DATE.isoformat()} to "
+            f"{MAX_DATE.isoformat()}); check the year",
+        )
+        return None
+    return got
 
 
 def _categories(r: _Reader) -> list[Category]:

@@ -62,6 +62,9 @@ RATER_ACTION_SHARE = 0.05
 BORDERLINE_SHARE = 0.20
 #: a straddled level needing more than this many times the present items is called impractical
 SETTLE_PRACTICAL_FACTOR = 20
+#: above this many times the present items, a straddled level is "not settled by a larger study
+#: of this design" (issue 12; common practice, no source)
+NOT_SETTLED_FACTOR = 10
 #: number of hard items named in the action list
 HARD_ITEMS_SHOWN = 5
 
@@ -1269,6 +1272,12 @@ def _settle(
             "the interval straddles the level and the estimate sits on it: more items alone "
             "are unlikely to settle it"
         )
+    elif headline["items_needed"] > NOT_SETTLED_FACTOR * n:
+        text = (
+            f"not settled by a larger study of this design: it would take more than "
+            f"{NOT_SETTLED_FACTOR} times the present {n} items; a tighter inspection procedure "
+            f"or more items near the decision (e.g. more defect items) would settle it sooner"
+        )
     else:
         text = (
             f"more items would settle it: about {headline['items_needed']} items in all "
@@ -1358,8 +1367,16 @@ def _check(
     entry["value"] = value
     entry["outcome"] = outcome_of(value, rule)
     entry["margin"] = sign * (value - rule.pass_level)
-    entry["settle"] = _settle(
-        {**rec, "ci_low": entry["ci_low"], "ci_high": entry["ci_high"]}, rule, value, design_items
+    # items needed only where it helps: never beside a check that already meets
+    entry["settle"] = (
+        None
+        if entry["outcome"] == "meets"
+        else _settle(
+            {**rec, "ci_low": entry["ci_low"], "ci_high": entry["ci_high"]},
+            rule,
+            value,
+            design_items,
+        )
     )
     return entry
 

@@ -89,6 +89,7 @@ class Verification:
     seconds: float = 0.0
     draft: bool = False  # the report says it is a DRAFT (built with --replace)
     notes: list[str] = field(default_factory=list)  # worth saying, but not a failed check
+    state: str | None = None  # release | draft, from the build record (None: no record)
 
     @property
     def ok(self) -> bool:
@@ -121,6 +122,7 @@ class Verification:
             "pdf": str(self.pdf),
             "genuine": self.ok,
             "draft": self.draft,
+            "state": self.state,
             "study": {"id": self.study_id, "revision": self.revision},
             "findings": [
                 {"check": f.check, "ok": f.ok, "message": f.message, "details": list(f.details)}
@@ -594,6 +596,7 @@ def verify_report(
             record_problem = f"edited build record: {exc}"
     if record is not None:
         v.draft = record.draft
+        v.state = record.state
         state = meta.get("/" + STATE_KEY)
         if state != record.state:
             record_problem = (

@@ -136,7 +136,9 @@ def read_yaml(path: str | os.PathLike[str], *, what: str = "study definition") -
             f"{what} is {size:,} bytes; the limit is {MAX_YAML_BYTES:,}",
             hint="keep ratings in the CSV file, not in the YAML",
         )
-    raw = p.read_bytes()
+    from .safeio import read_limited
+
+    raw = read_limited(p, MAX_YAML_BYTES, shown=shown, what=what)
     if raw[:4] in (b"PK\x03\x04", b"%PDF") or raw[:8] == b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1":
         kind = "a PDF" if raw[:4] == b"%PDF" else "a workbook or other binary file"
         raise InputError.single(

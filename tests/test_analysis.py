@@ -192,11 +192,18 @@ def test_accuracy_hand_counts(design_a: dict[str, Any]) -> None:
     # Cohen's kappa: R1 p_o 7/8, p_e 1/2 -> 0.75; R2 p_o 5/8, p_e 1/2 -> 0.25
     assert r1["cohen_kappa"]["estimate"] == pytest.approx(0.75, abs=1e-12)
     assert r2["cohen_kappa"]["estimate"] == pytest.approx(0.25, abs=1e-12)
-    # Clopper-Pearson interval for 7/8 (exact beta quantiles; Clopper & Pearson 1934)
-    from scipy.stats import beta
+    # two trials: the item is the unit (issue 12). R1's matches per item 2, 1, 2, 2 of 2:
+    # p = 7/8; cluster-robust V = 4/3 * (3 * 0.25^2 + 0.75^2) / 8^2 = 1/64; binomial 7/512;
+    # design effect D = 8/7 (Rao & Scott 1992), effective n = 7, effective events 6.125;
+    # Wilson (1927) on those, cross-checked with statsmodels' proportion_confint
+    from statsmodels.stats.proportion import proportion_confint
 
-    assert r1["effectiveness"]["ci_low"] == pytest.approx(beta.ppf(0.025, 7, 2), rel=1e-9)
-    assert r1["effectiveness"]["ci_high"] == pytest.approx(beta.ppf(0.975, 8, 1), rel=1e-9)
+    lo, hi = proportion_confint(6.125, 7, alpha=0.05, method="wilson")
+    assert r1["effectiveness"]["ci_low"] == pytest.approx(lo, rel=1e-9)
+    assert r1["effectiveness"]["ci_high"] == pytest.approx(hi, rel=1e-9)
+    assert design_a["design"]["rate_intervals"]["design_effects"][
+        "accuracy.R1.effectiveness"
+    ] == pytest.approx(8 / 7, rel=1e-12)
 
 
 def test_reproducibility_and_panel_hand_counts(design_a: dict[str, Any]) -> None:

@@ -78,6 +78,7 @@ def _append_overlay(src: Path, dst: Path) -> None:
 def test_untouched_report_is_proven_byte_for_byte(report_a: Path) -> None:
     v = verify_report(report_a)
     assert v.ok, v.format()
+    assert (v.state, v.as_dict()["state"], v.draft) == ("release", "release", False)
     ok, msg, _ = _checks(v)["document"]
     assert ok
     size = report_a.stat().st_size
@@ -222,3 +223,52 @@ def test_renamed_file_is_named(report_a: Path, tmp_path: Path) -> None:
     signed_name = tmp_path / "LUG-CHECK-rev1-signed.pdf"
     shutil.copyfile(report_a, signed_name)
     assert verify_report(signed_name).notes == []
+
+
+def test_huge_bootstrap_in_the_attached_study_is_refused_quickly(
+    report_a: Path, tmp_path: Path
+) -> None:
+    """An attached study asking 10^8 resamples drove verify to 3-4 GB; now it is refused."""
+    atts = attachments_of(report_a)
+    atts["study.yaml"] = atts["study.yaml"].replace(
+        b"bootstrap: {resamples: 0, seed: 3}", b"bootstrap: {resamples: 100000000, seed: 3}"
+    )
+    bad = rewrite_attachments(report_a, tmp_path / report_a.name, atts)
+    v = verify_report(bad)
+    ok, msg, details = _checks(v)["recompute"]
+    assert not ok and msg == "the attached inputs cannot be loaded:"
+    assert any("must be at most 100,000, got 100,000,000" in d for d in details), details
+    assert v.seconds < 30
+
+
+def test_build_archive_verify_sign_verify_cycle(report_a: Path, tmp_path: Path) -> None:
+    """Done when: build -> archive -> verify -> sign -> verify stays GENUINE and byte-identical."""
+    from _built import GENERATED_AT, build, study_files
+
+    from reportgen.archive import archive_revision
+    from reportgen.sign import sign_report
+
+    # a second build of the same inputs at the same time is byte-identical
+    again = build(study_files(tmp_path / "study"), tmp_path / "output")
+    assert (again / report_a.name).read_bytes() == report_a.read_bytes()
+    assert GENERATED_AT.year == 2026
+    # sign a copy into the revision folder (signed copies are archived with the revision)
+    p12, pem = self_signed_p12(tmp_path)
+    signed = sign_report(
+        again / report_a.name,
+        key=p12,
+        passphrase=b"s3cret",
+        output=again / report_a.name.replace(".pdf", "-signed.pdf"),
+    )
+    entry = archive_revision(again, archive_dir=tmp_path / "archive")
+    assert signed.name in entry.files
+    archived = tmp_path / "archive" / entry.folder / report_a.name
+    assert archived.read_bytes() == report_a.read_bytes()
+    v = verify_report(archived)
+    assert v.ok and _checks(v)["document"][0], v.format()
+    resigned = sign_report(archived, key=p12, passphrase=b"s3cret", output=tmp_path / "s.pdf")
+    assert resigned.read_bytes().startswith(report_a.read_bytes())
+    v2 = verify_report(resigned, trust=(pem,))
+    assert v2.ok, v2.format()
+    v3 = verify_report(tmp_path / "archive" / entry.folder / signed.name, trust=(pem,))
+    assert v3.ok, v3.format()

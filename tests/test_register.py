@@ -107,7 +107,13 @@ def test_latest_study_decides(two_revisions: Path) -> None:
         "Ben Okafor": ("not certified", None, None, "not certified", 2),
         "Chen Wei": ("certified", "2027-01-10", "2028-01-31", "valid", 2),
     }
-    assert reg.counts() == {"valid": 2, "due": 0, "expired": 0, "not certified": 1}
+    assert reg.counts() == {
+        "valid": 2,
+        "due": 0,
+        "expired": 0,
+        "not certified": 1,
+        "not yet certified": 0,
+    }
     table = format_table(reg)
     assert (
         "Ben Okafor" in table
@@ -119,7 +125,9 @@ def test_latest_study_decides(two_revisions: Path) -> None:
     assert rows[0]["valid_until"] == "2028-01-31" and rows[1]["days_left"] == ""
 
 
-def test_characteristics_are_kept_apart_and_names_match_across_studies(tmp_path: Path) -> None:
+def test_characteristics_are_kept_apart_and_lines_are_rater_id_and_study(tmp_path: Path) -> None:
+    """A line is one rater id in one study: names are shown as given and never merged (two
+    people may share a name; issue 13)."""
     out, root = tmp_path / "output", tmp_path / "archive"
     archive_revision(make_revision(out, "SEAL-CHECK", 1, date="2026-01-15"), archive_dir=root)
     archive_revision(
@@ -151,6 +159,7 @@ def test_characteristics_are_kept_apart_and_names_match_across_studies(tmp_path:
     )
     assert got == [
         ("ana  ruiz", "Crimp height", "not certified", "CRIMP-CHECK"),
+        ("ana ruiz", "Seal seating", "valid", "SEAL-CHECK"),
         ("ana ruiz", "Seal seating", "valid", "SEAL-RECHECK"),
         ("ben okafor", "Seal seating", "valid", "SEAL-CHECK"),
     ]

@@ -344,18 +344,39 @@ def test_by_category_rules() -> None:
 
 
 def test_straddled_level_gives_items_needed_by_square_root_scaling() -> None:
-    # estimate 0.80, interval 0.70-0.88, pass 0.75 inside it: the lower half-width 0.10 must
+    # estimate 0.70, interval 0.60-0.80, pass 0.75 inside it: the upper half-width 0.10 must
     # shrink to 0.05, i.e. 4 x the items: 50 -> 200
+    study = make_study(criteria=rules({"measure": "reproducibility.fleiss_kappa", "pass": 0.75}))
+    res = make_results(
+        study, items=50, panel={"reproducibility": {"fleiss_kappa": M(0.70, 0.60, 0.80)}}
+    )
+    check = judge(study, res)["verdict"]["rules"][0]
+    assert check["outcome"] == "short"
+    settle = check["settle"]
+    assert settle["items_needed"] == math.ceil(50 * (0.10 / 0.05) ** 2 - 1e-9) == 200
+    assert settle["items_now"] == 50
+    assert "more items would settle it" in settle["text"]
+
+
+def test_no_items_needed_beside_a_check_that_meets() -> None:
+    # issue 12: estimate 0.80 meets 0.75 although the interval 0.70-0.88 straddles it
     study = make_study(criteria=rules({"measure": "reproducibility.fleiss_kappa", "pass": 0.75}))
     res = make_results(
         study, items=50, panel={"reproducibility": {"fleiss_kappa": M(0.80, 0.70, 0.88)}}
     )
     check = judge(study, res)["verdict"]["rules"][0]
-    assert check["outcome"] == "meets"
-    settle = check["settle"]
-    assert settle["items_needed"] == math.ceil(50 * (0.10 / 0.05) ** 2 - 1e-9) == 200
-    assert settle["items_now"] == 50
-    assert "more items would settle it" in settle["text"]
+    assert check["outcome"] == "meets" and check["settle"] is None
+
+
+def test_more_than_ten_times_the_items_is_not_settled_by_a_larger_study() -> None:
+    # estimate 0.74, interval 0.60-0.88: half-width 0.14 to gap 0.01 -> 50 * 196 = 9800 items
+    study = make_study(criteria=rules({"measure": "reproducibility.fleiss_kappa", "pass": 0.75}))
+    res = make_results(
+        study, items=50, panel={"reproducibility": {"fleiss_kappa": M(0.74, 0.60, 0.88)}}
+    )
+    settle = judge(study, res)["verdict"]["rules"][0]["settle"]
+    assert settle["items_needed"] > 10 * 50
+    assert settle["text"].startswith("not settled by a larger study of this design")
 
 
 def test_lower_bound_below_pass_with_estimate_above_is_settled_by_more_items() -> None:

@@ -110,6 +110,9 @@ def command(
     when = resolve_generated_at(generated_at)
     progress("reading the study")
     study = load_study(study)
+    from ..outputs import check_output_folder
+
+    check_output_folder(output)
     target = revision_dir(output, study)
     refuse_archive_target(target)
     if target.exists():

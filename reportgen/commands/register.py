@@ -93,11 +93,11 @@ def command(
         root, as_of=day, due_within=due_within, characteristic=characteristic, station=station
     )
     if as_json:
-        import csv
-        import io
         import json
 
-        rows = list(csv.DictReader(io.StringIO(to_csv(reg))))
+        from ..register import csv_rows
+
+        rows = csv_rows(reg, safe=False)  # JSON is data: names exactly as given
         click.echo(json.dumps({"as_of": day.isoformat(), "rows": rows}, indent=2))
     elif not quiet:
         click.echo(format_table(reg), nl=False)

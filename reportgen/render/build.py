@@ -85,7 +85,19 @@ def resolve_generated_at(value: dt.datetime | str | None) -> dt.datetime:
             value = dt.datetime.now(tz=dt.UTC)
     if value.tzinfo is None:
         value = value.replace(tzinfo=dt.UTC)
-    return value.astimezone(dt.UTC).replace(microsecond=0)
+    try:
+        when = value.astimezone(dt.UTC).replace(microsecond=0)
+    except (OverflowError, ValueError):
+        when = None
+    if when is None or not dt.datetime(1900, 1, 1, tzinfo=dt.UTC) <= when < dt.datetime(
+        3000, 1, 1, tzinfo=dt.UTC
+    ):
+        raise InputError.single(
+            "--generated-at",
+            f"{value.isoformat()} is outside the build times accepted (years 1900 to 2999, UTC)",
+            hint="write it like 2026-11-20T09:00:00Z",
+        )
+    return when
 
 
 def results_bytes(results: Mapping[str, Any]) -> bytes:
@@ -408,8 +420,10 @@ def build_report(
     loaded and computed here).  Raises ExistsError before any work when the revision exists
     and ``replace`` is false.
     """
+    from ..outputs import check_output_folder
     from ..ratings import load_ratings
 
+    check_output_folder(Path(output_dir))
     target = revision_dir(Path(output_dir), study)
     refuse_archive_target(target)
     if target.exists() and not replace:

@@ -698,6 +698,9 @@ def _interval_text(study: Study, results: Mapping[str, Any]) -> str:
     else:
         text += " Coefficients use their published analytic (non-null) standard errors; no bootstrap was run."
     text += " p-values test against chance agreement with the published null variance."
+    rate = ((results.get("design") or {}).get("rate_intervals") or {}).get("text")
+    if rate:
+        text += " " + str(rate)
     return text
 
 
