@@ -149,7 +149,9 @@ def stranded_headings(
 ) -> list[str]:
     """Pages whose last body line is a heading, a table caption or a glossary term (or the end
     of one that wraps). The last page is exempt: nothing follows it."""
-    heads = [_norm(h) for h in headings if len(_norm(h)) >= 2]
+    # one-word terms ("reference") also end ordinary lines of table cells: headings of two or
+    # more words only
+    heads = [_norm(h) for h in headings if len(_norm(h).split()) >= 2]
     found: list[str] = []
     for page in pages[:-1]:
         lines = [_norm(x) for x in body_lines(page, top, bottom)]
@@ -186,6 +188,7 @@ def svg_text_sizes(svg: bytes, print_width_pt: float) -> list[float]:
     return [
         100 * float(a) * shrink
         for a, b in re.findall(
-            rb'transform="translate\([^)]*\) scale\(([0-9.]+) -([0-9.]+)\)"', svg
+            rb'transform="translate\([^)]*\)(?: rotate\([^)]*\))? scale\(([0-9.]+) -([0-9.]+)\)"',
+            svg,
         )
     ]

@@ -702,7 +702,8 @@ def report_charts(
         )
 
     by_cat = (results.get("reproducibility") or {}).get("fleiss_kappa_by_category") or {}
-    if by_cat:
+    # on a binary scale the two categories' kappas are the same figure: no chart of them
+    if by_cat and study.scale != "binary":
         pts = [
             Point(labels.get(code, code), m.get("estimate"), m.get("ci_low"), m.get("ci_high"))
             for code, m in by_cat.items()

@@ -41,9 +41,9 @@ SECTIONS: tuple[tuple[str, str], ...] = (
     ("confusion", "Category confusion"),
     ("ordinal", "Ordered-scale agreement"),
     ("hard-items", "Hard items"),
-    ("caveats", "Reading the coefficients"),
     ("certification", "Inspector certification"),
     ("signoff", "Sign-off"),
+    ("caveats", "Reading the coefficients"),
     ("method", "Method statement"),
     ("appendix", "Appendix"),
 )
@@ -234,6 +234,12 @@ class ReportContext:
         "{seed, seed_source, blinding, order, gap (texts), trial_dates: [{trial, date}], "
         "revision (the study revision it was made for), items, run_sheets, key_used (bool: the "
         "ratings were decoded with a plan key)}."
+    )
+    core_hard_items: int = field(
+        default=10,
+        metadata={
+            "help": "How many hard items the core of the report lists; the appendix lists them all."
+        },
     )
 
 

@@ -35,9 +35,9 @@ SECTION_TITLES = [
     "Category confusion",
     "Ordered-scale agreement",
     "Hard items",
-    "Reading the coefficients",
     "Inspector certification",
     "Sign-off",
+    "Reading the coefficients",
     "Method statement",
     "Appendix",
 ]

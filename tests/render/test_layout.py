@@ -64,7 +64,7 @@ def test_demo_report_never_ends_a_page_with_a_heading_caption_or_term(
 ) -> None:
     built = request.getfixturevalue(which)
     heads = L.heading_texts(built.html)
-    assert "Hard items, least agreement first" in heads or which == "built_nominal"
+    assert any(h.startswith("Hard items, least agreement first") for h in heads)
     assert L.stranded_headings(_pages(built), heads, top=TOP, bottom=BOTTOM) == []
 
 

@@ -153,3 +153,39 @@ def test_sign_off_follows_what_it_signs_and_method_follows_the_core(
         block = block.split('<div class="certificate">', 1)[0]
         if "not judged" in block.split("</p>", 2)[1]:
             assert "Inspector signature" not in block.split("</section>", 1)[0]
+
+
+@pytest.mark.render
+@pytest.mark.slow
+@pytest.mark.parametrize("which", DEMOS)
+def test_detail_a_reader_looks_up_sits_in_the_appendix(
+    which: str, request: pytest.FixtureRequest
+) -> None:
+    built = request.getfixturevalue(which)
+    doc = built.html
+    appendix = doc.index('id="appendix"')
+    for marker in (
+        "Agreement among the raters in trial",
+        'id="fig-item-map"',
+        'id="fig-confusion"',
+        "<caption>Fleiss' kappa per category</caption>",
+    ):
+        if marker in doc:
+            assert doc.index(marker) > appendix, marker
+    assert 'id="fig-item-map"' in doc  # every demo draws its item map, in the appendix
+    # the core lists at most 10 hard items; the appendix lists them all
+    core = doc[: doc.index('id="signoff"')]
+    hard = built.results.get("hard_items") or []
+    if len(hard) > 10:
+        table = core.split('<table class="hard">', 1)[1].split("</table>", 1)[0]
+        assert table.count("<tr>") == 1 + 10
+        assert f"all {len(hard)}" in doc[appendix:]
+    # a binary scale has two identical rows per category: none is shown
+    if built.study.scale == "binary":
+        assert "Fleiss' kappa per category" not in doc
+    # the core ends before "Reading the coefficients", which opens the part a reader looks up
+    pages = pdftotext_pages(built.pdf_path)
+    first = next(
+        i for i, p in enumerate(pages) if "Reading the coefficients\n" in p.split("\n", 3)[-1]
+    )
+    assert first <= 11, first  # core pages (SEAL 11, FINISH 10, TRIAGE 5; 15/15/9 before)
