@@ -44,6 +44,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from .buildrecord import ENTRY_NAME, sha256_file
 from .errors import ExistsError, InputError
 
 ENV_ARCHIVE = "REPORTGEN_ARCHIVE"
@@ -56,7 +57,6 @@ ENV_TEST_KILL = "REPORTGEN_TEST_ARCHIVE_KILL"
 KILL_STEPS = ("pending", "copy", "entry", "rename", "insert", "done")
 
 INDEX_NAME = "index.sqlite"
-ENTRY_NAME = "archive-entry.json"
 SCHEMA_VERSION = 1
 PARTIAL_PREFIX = ".partial-"
 _REV_RE = re.compile(r"^rev([1-9][0-9]*)$")
@@ -188,14 +188,6 @@ def sha256_bytes(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
 
 
-def sha256_file(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for chunk in iter(lambda: f.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
-
-
 def item_set_digest(items: list[str]) -> str:
     return sha256_bytes("".join(f"{i}\n" for i in sorted(items)).encode("utf-8"))
 
@@ -281,7 +273,7 @@ def _results_study_facts(results: dict[str, Any]) -> dict[str, Any]:
 
 def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
     """Read and check a built revision folder; raises InputError naming what is wrong."""
-    from .verify import read_attachments
+    from .pdfread import read_attachments
 
     path = Path(revision_dir)
     if not path.is_dir():
@@ -352,7 +344,7 @@ def read_built_revision(revision_dir: str | Path) -> BuiltRevision:
             hint="rebuild the revision; do not archive a changed report",
         )
     from .archivecheck import check_built_folder
-    from .verify import GENERATED_ATTACHMENTS
+    from .pdfread import GENERATED_ATTACHMENTS
 
     files = check_built_folder(path, files, pdf, attachments)
     inputs = {
@@ -502,7 +494,7 @@ def software_version(results: dict[str, Any]) -> str | None:
 def _built_with(pdf: Path) -> str | None:
     """The reportgen version in the report PDF's attached build record, or None."""
     from .buildrecord import RECORD_NAME, parse_record
-    from .verify import read_attachments
+    from .pdfread import read_attachments
 
     data = read_attachments(pdf).get(RECORD_NAME)
     if data is None:

@@ -94,7 +94,7 @@ def check_built_folder(
     pdf_rel = pdf.relative_to(path).as_posix()
     if manifest.get(pdf_rel) != files.get(pdf_rel):
         raise _refuse(pdf, f"{pdf_rel} is not listed in {MANIFEST_NAME} with its SHA-256")
-    from .rebuild import appended_problems, original_end
+    from .pdftail import appended_problems, original_end
 
     data = pdf.read_bytes()
     end = original_end(data)
@@ -133,8 +133,8 @@ def _is_signed_copy(path: Path, built: bytes) -> bool:
     data = path.read_bytes()
     if not data.startswith(built) or len(data) == len(built):
         return False
-    from .rebuild import appended_problems
-    from .sign import check_signatures
+    from .pdftail import appended_problems
+    from .sigcheck import check_signatures
 
     if appended_problems(data, len(built), signed=True):
         return False
@@ -144,7 +144,7 @@ def _is_signed_copy(path: Path, built: bytes) -> bool:
 
 def recheck_entry(root: Path, entry: Any) -> list[str]:
     """The archived files of ``entry`` that no longer match the index: '<file>: why'."""
-    from .archive import ENTRY_NAME, sha256_file
+    from .buildrecord import ENTRY_NAME, sha256_file
 
     folder = Path(root) / entry.folder
     if not folder.is_dir():
@@ -198,13 +198,10 @@ def check_archive_files(root: Path, entries: list[Any]) -> None:
         )
 
 
-def archive_summary(root: Path, report: Path | None) -> tuple[bool, list[str]]:
-    """For ``verify --archive``: (every archived file matches, lines to print)."""
+def archive_summary(root: Path, entries: list[Any], report: Path | None) -> tuple[bool, list[str]]:
+    """For ``verify --archive``: (every archived file of ``entries`` matches, lines to print)."""
     import hashlib
 
-    from .archive import list_entries
-
-    entries = list_entries(root)
     differences = recheck_all(root, entries)
     files = sum(len(e.files) for e in entries)
     lines = []

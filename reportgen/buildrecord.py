@@ -147,3 +147,16 @@ def parse_manifest(text: str) -> dict[str, str]:
             raise ValueError(f"line {n} is not '<sha256>  <file name>'")
         out[parts[1].lstrip("*").strip()] = digest
     return out
+
+
+#: The entry file ``archive`` writes into each archived revision folder.
+ENTRY_NAME = "archive-entry.json"
+
+
+def sha256_file(path: Path) -> str:
+    """The SHA-256 of a file, read in 1 MiB chunks."""
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for chunk in iter(lambda: f.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()

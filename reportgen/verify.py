@@ -42,10 +42,10 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 
 from .errors import InputError
+from .pdfread import GENERATED_ATTACHMENTS, read_attachments  # noqa: F401  (re-exported)
 
 TOLERANCE = 1e-12
 #: attachments ``build`` makes (not inputs): covered by the rebuild, not by the printed SHA-256 list
-GENERATED_ATTACHMENTS = frozenset({"results.json", "build-record.json"})
 #: the line every DRAFT report carries on its first page (templates/report.html)
 DRAFT_MARK = "DRAFT — built with --replace; not a released revision"
 #: measure keys the report prints as percentages (the report's own convention, templates/_macros.html)
@@ -134,20 +134,6 @@ class Verification:
 
 
 # --------------------------------------------------------------------------- PDF reading
-
-
-def read_attachments(pdf: str | Path) -> dict[str, bytes]:
-    """The embedded files of a PDF, by name (first one when a name repeats)."""
-    import pypdf
-    from pypdf.errors import PdfReadError
-
-    path = Path(pdf)
-    try:
-        reader = pypdf.PdfReader(str(path))
-        found = reader.attachments
-        return {str(name): bytes(datas[0]) for name, datas in found.items() if datas}
-    except (OSError, PdfReadError, ValueError, KeyError, TypeError) as exc:
-        raise InputError.single(path, f"cannot be read as a PDF: {exc}") from None
 
 
 def _read_pdf(path: Path) -> tuple[bytes, dict[str, bytes], str, dict[str, str], str | None]:
@@ -488,11 +474,11 @@ def verify_report(
     v.draft = DRAFT_MARK in flat
 
     # 1. signature
-    from .sign import has_signature
+    from .sigcheck import has_signature
 
     if has_signature(data):
         say("checking the signature")
-        from .sign import check_signatures
+        from .sigcheck import check_signatures
 
         for s in check_signatures(data, trust=trust):
             ok = s.ok and (s.trusted or not trust)
@@ -744,7 +730,8 @@ def _check_document(
     signed: bool,
 ) -> None:
     """The ``document`` check: the original revision against the rebuild; what was appended."""
-    from .rebuild import appended_problems, compare_pages, original_end
+    from .pdftail import appended_problems, original_end
+    from .rebuild import compare_pages
 
     end = original_end(data)
     wrong: list[str] = []

@@ -236,7 +236,7 @@ def test_verify_archive_says_whether_a_report_is_archived(tmp_path: Path) -> Non
     archive_revision(rev, archive_dir=root, now=NOW)
     from reportgen.archivecheck import archive_summary
 
-    ok, lines = archive_summary(root, rev / "SEAL-CHECK-rev1.pdf")
+    ok, lines = archive_summary(root, list_entries(root), rev / "SEAL-CHECK-rev1.pdf")
     assert ok
     assert lines[1] == (
         "  SEAL-CHECK-rev1.pdf is archived: SEAL-CHECK/rev1/SEAL-CHECK-rev1.pdf (SEAL-CHECK "
@@ -244,7 +244,7 @@ def test_verify_archive_says_whether_a_report_is_archived(tmp_path: Path) -> Non
     )
     other = tmp_path / "other.pdf"
     other.write_bytes(b"%PDF-1.7\n")
-    assert archive_summary(root, other)[1][1] == (
+    assert archive_summary(root, list_entries(root), other)[1][1] == (
         "  other.pdf is not in the archive (no archived file has its SHA-256)"
     )
 

@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 from _built import attachments_of, built_report, rewrite_attachments, self_signed_p12
 
-from reportgen.rebuild import appended_problems, original_end, revision_ends
+from reportgen.pdftail import appended_problems, original_end, revision_ends
 from reportgen.verify import verify_report
 
 pytestmark = [

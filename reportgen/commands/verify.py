@@ -62,10 +62,11 @@ def command(
         raise click.UsageError("give the REPORT to check, or --archive DIR, or both")
     archive_ok = True
     if archive_dir is not None:
-        from ..archive import resolve_archive_dir
+        from ..archive import list_entries, resolve_archive_dir
         from ..archivecheck import archive_summary
 
-        archive_ok, lines = archive_summary(resolve_archive_dir(archive_dir), report)
+        root = resolve_archive_dir(archive_dir)
+        archive_ok, lines = archive_summary(root, list_entries(root), report)
         if not as_json and (not quiet or not archive_ok):
             click.echo("\n".join(lines))
         if report is None:
