@@ -51,9 +51,9 @@ def _looser(cert_rule: Rule, crit_rule: Rule) -> bool:
 
 
 def _format_key(keys: Sequence[Any]) -> str:
-    from .verdict import _format_key as fmt
+    from .yamlio import format_key
 
-    return fmt(keys)
+    return format_key(keys)
 
 
 def _where(study: Study, keys: Sequence[Any]) -> str:

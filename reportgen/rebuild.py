@@ -62,10 +62,10 @@ def rebuild_report(
     """
     import time
 
+    from .attached import materialise
     from .ratings import load_ratings
     from .render.build import compute_results, render_report
     from .study import load_study
-    from .verify import materialise
 
     say = progress or (lambda _m: None)
     t0 = time.perf_counter()

@@ -599,13 +599,9 @@ class Certification:
 
 
 def _format_key(keys: Sequence[Any]) -> str:
-    out = ""
-    for k in keys:
-        if isinstance(k, int):
-            out += f"[{k}]"
-        else:
-            out += f".{k}" if out else str(k)
-    return out
+    from .yamlio import format_key
+
+    return format_key(keys)
 
 
 class _Parser:

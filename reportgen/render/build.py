@@ -201,6 +201,10 @@ def render_report(
     check_glyphs(_user_text(study, ratings))  # fail early and clearly, before charts are drawn
     say("charts")
     charts = report_charts(study, ratings, dict(results), verdict_view(results, rater_dicts(study)))
+    if results.get("measured"):  # measured reference values: render/measured_charts.py
+        from .measured_charts import measured_charts
+
+        charts.update(measured_charts(dict(results)))
     timings["charts"] = time.perf_counter() - t0
     t0 = time.perf_counter()
     software = list(software) if software is not None else _versions()

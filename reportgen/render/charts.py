@@ -773,8 +773,4 @@ def report_charts(
             + (", with the reference category in the last column." if ref is not None else "."),
             note="Rows at the top mix categories: these are the items to review as limit samples.",
         )
-    if results.get("measured"):  # measured reference values: render/measured_charts.py
-        from .measured_charts import measured_charts
-
-        charts.update(measured_charts(results))
     return charts
